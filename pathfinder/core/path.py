@@ -1,0 +1,349 @@
+"""Whole regularisation paths of penalised GLMs: lasso, elastic net, ridge.
+
+For one penalty ``lam`` the fit minimises (Friedman, Hastie & Tibshirani 2010)
+
+    (1/n) * sum_i w_i * deviance_i / 2
+      + lam * sum_j v_j * [ (1 - mix) / 2 * b_j^2 + mix * |b_j| ]
+
+with observation weights ``w`` rescaled to sum to n, an unpenalised intercept
+and per-term penalty weights ``v_j >= 0`` (0 keeps the term in every model).
+With uniform weights this is the scaling of scikit-learn's ``enet_path``
+(alpha = lam, l1_ratio = mix), ``LogisticRegression`` (C = 1 / (n lam)) and
+``PoissonRegressor`` (alpha = lam, mix = 0).
+
+Predictors are centred and scaled to weighted population SD 1 before fitting
+(unless ``standardize=False``); coefficients are returned on the original
+scale of X (``coef``) and on the standardised scale (``coef_std``).
+
+The path
+--------
+* The grid starts at ``lam_max``, the smallest penalty at which every penalised
+  coefficient is zero, computed exactly from the gradient at the model holding
+  only the intercept and the unpenalised terms. For ``mix < 0.001`` (ridge and
+  near-ridge) the grid is anchored at the ``lam_max`` of ``mix = 0.001``, since a
+  pure ridge penalty never sets a coefficient to zero.
+* It runs down to ``penalty_ratio * lam_max`` (default 1e-4 when n > p, else
+  1e-2), log-spaced, each fit warm-started from the previous one.
+* It stops early, on the automatic grid only, once at least five penalties are
+  fitted and the deviance explained rises by less than 1e-5 of itself from one
+  penalty to the next; on any grid it stops when the deviance explained
+  exceeds 0.999 (a saturated fit: for presence/absence data this means the
+  classes are separated and the coefficients would run off to infinity), and
+  says so in a warning.
+* Sequential strong rules (Tibshirani et al. 2012) choose the working set;
+  after each fit every term outside it is checked against the KKT conditions
+  and the fit is repeated with any violator added.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from ..errors import FitWarning
+from .families import get_family
+from .solvers import GramSolver, NaiveSolver, standardised_copy, weighted_mean
+
+MIX_FLOOR = 1e-3          # mix used for lam_max when mix is (near) 0
+SMALL_CHANGE = 1e-5       # early stop: relative rise in deviance explained
+SATURATED = 0.999         # early stop: deviance explained
+MIN_STEPS_BEFORE_STOP = 5
+GRAM_MAX_TERMS = 500      # Gaussian uses the Gram matrix when n > p and p <= this
+
+
+@dataclass(frozen=True)
+class PathResult:
+    """A fitted path; row k of every (K, ...) array belongs to ``penalties[k]``."""
+
+    family: str
+    mix: float
+    names: tuple
+    penalties: np.ndarray
+    intercept: np.ndarray
+    coef: np.ndarray
+    intercept_std: np.ndarray
+    coef_std: np.ndarray
+    deviance: np.ndarray
+    null_deviance: float
+    deviance_ratio: np.ndarray
+    n_terms: np.ndarray
+    n_iter: np.ndarray
+    kkt_violation: np.ndarray
+    kkt_refits: np.ndarray
+    center: np.ndarray
+    scale: np.ndarray
+    term_weights: np.ndarray
+    n_obs: int
+    standardize: bool
+    stop_reason: str
+    warnings: tuple = field(default=())
+
+    # ---- reading the path -------------------------------------------------
+    def to_frame(self) -> pd.DataFrame:
+        """Long table: one row per (step, term) with the original-scale and standardised coefficient."""
+        K, p = self.coef.shape
+        return pd.DataFrame({
+            "step": np.repeat(np.arange(K), p),
+            "penalty": np.repeat(self.penalties, p),
+            "term": np.tile(np.asarray(self.names, dtype=object), K),
+            "estimate": self.coef.ravel(),
+            "estimate_std": self.coef_std.ravel(),
+        })
+
+    def summary_frame(self) -> pd.DataFrame:
+        """One row per penalty: size and fit of the model there."""
+        return pd.DataFrame({
+            "step": np.arange(len(self.penalties)),
+            "penalty": self.penalties,
+            "n_terms": self.n_terms,
+            "deviance": self.deviance,
+            "deviance_ratio": self.deviance_ratio,
+            "intercept": self.intercept,
+        })
+
+    def coefficients_at(self, penalty):
+        """(intercept, coef) at any penalty inside the grid.
+
+        Between two grid points the coefficients are interpolated linearly in
+        log(penalty); at a grid point they are the fitted values exactly.
+        """
+        lam = np.asarray(self.penalties)
+        if penalty >= lam[0]:
+            return float(self.intercept[0]), self.coef[0].copy()
+        if penalty <= lam[-1]:
+            return float(self.intercept[-1]), self.coef[-1].copy()
+        k = int(np.searchsorted(-lam, -penalty))  # lam[k-1] > penalty >= lam[k]
+        if lam[k] == penalty:
+            return float(self.intercept[k]), self.coef[k].copy()
+        t = (np.log(lam[k - 1]) - np.log(penalty)) / (np.log(lam[k - 1]) - np.log(lam[k]))
+        b0 = (1 - t) * self.intercept[k - 1] + t * self.intercept[k]
+        return float(b0), (1 - t) * self.coef[k - 1] + t * self.coef[k]
+
+    def predict(self, X, penalty=None, *, kind="response", offset=None):
+        """Predictions for rows of X: (n, K) for the whole path, (n,) at one penalty.
+
+        ``kind="link"`` gives the linear predictor, ``"response"`` the mean
+        (probability for binomial, expected count for Poisson).
+        """
+        X = _as_matrix(X, self.names)
+        if penalty is None:
+            eta = self.intercept[None, :] + X @ self.coef.T
+        else:
+            b0, b = self.coefficients_at(float(penalty))
+            eta = b0 + X @ b
+        if offset is not None:
+            off = np.asarray(offset, dtype=float)
+            eta = eta + (off[:, None] if eta.ndim == 2 else off)
+        if kind == "link":
+            return eta
+        if kind != "response":
+            raise ValueError("kind must be 'link' or 'response'")
+        return get_family(self.family).inverse_link(eta)
+
+
+def _as_matrix(X, names=None):
+    if isinstance(X, pd.DataFrame):
+        if names is not None and all(isinstance(n, str) for n in names) and set(names) <= set(X.columns):
+            X = X[list(names)]
+        return X.to_numpy(dtype=float)
+    return np.asarray(X, dtype=float)
+
+
+def _check_vector(v, n, what):
+    v = np.asarray(v, dtype=float).ravel()
+    if v.shape[0] != n:
+        raise ValueError(f"{what} has {v.shape[0]} values but X has {n} rows")
+    if not np.all(np.isfinite(v)):
+        raise ValueError(f"{what} contains missing or infinite values")
+    return v
+
+
+def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=100,
+             penalty_ratio=None, term_weights=None, offset=None, weights=None,
+             standardize=True, tol=1e-7, max_sweeps=100_000) -> PathResult:
+    """Fit a lasso / elastic-net / ridge path of a Gaussian, binomial or Poisson GLM.
+
+    Parameters
+    ----------
+    X : array or DataFrame (n, p). Column names of a DataFrame name the terms.
+    y : response (0/1 or proportions for binomial, counts for Poisson).
+    family : "gaussian", "binomial" or "poisson".
+    mix : 1 is the lasso, 0 ridge, in between the elastic net (Zou & Hastie 2005).
+    penalties : a grid of penalties to use instead of the automatic one
+        (sorted into decreasing order).
+    n_penalties, penalty_ratio : size and depth of the automatic grid.
+    term_weights : per-term penalty weights ``v_j >= 0`` (0 = always kept).
+    offset : added to the linear predictor (log survey effort for counts).
+    weights : observation weights ``>= 0``, rescaled to sum to n.
+    standardize : fit on standardised predictors (default) or on X as given.
+    tol : convergence threshold on the largest weighted squared coefficient
+        change, relative to the null deviance per observation.
+    """
+    if not 0.0 <= float(mix) <= 1.0:
+        raise ValueError(f"mix must lie between 0 (ridge) and 1 (lasso), got {mix}")
+    mix = float(mix)
+    fam = get_family(family)
+    names = tuple(str(c) for c in X.columns) if isinstance(X, pd.DataFrame) else None
+    if isinstance(X, pd.DataFrame):
+        X = X.to_numpy(dtype=float)
+    X = np.asarray(X)
+    if X.ndim != 2:
+        raise ValueError("X must be two-dimensional (rows = sites, columns = predictors)")
+    if not np.issubdtype(X.dtype, np.number):
+        X = X.astype(float)
+    n, p = X.shape
+    if names is None:
+        names = tuple(f"x{j}" for j in range(p))
+    y = _check_vector(y, n, "y")
+    if not np.all(np.isfinite(X)):
+        raise ValueError("X contains missing or infinite values")
+    offset = np.zeros(n) if offset is None else _check_vector(offset, n, "offset")
+    if weights is None:
+        w = np.ones(n)
+    else:
+        w = _check_vector(weights, n, "weights")
+        if np.any(w < 0) or w.sum() <= 0:
+            raise ValueError("weights must be non-negative and not all zero")
+        w = w * (n / w.sum())
+    v = np.ones(p) if term_weights is None else _check_vector(term_weights, p, "term_weights")
+    if np.any(v < 0):
+        raise ValueError("term_weights must be non-negative")
+    _check_response(fam.name, y)
+
+    use_gram = fam.name == "gaussian" and n > p and p <= GRAM_MAX_TERMS
+    mean = weighted_mean(X, w)
+    if use_gram:
+        solver, scale, constant = GramSolver.from_data(X, y, w, offset, mean, standardize, 1.0, max_sweeps)
+    else:
+        Xs, scale, constant = standardised_copy(X, mean, w, standardize)
+        solver = NaiveSolver(Xs, y, w, offset, fam, 1.0, max_sweeps)
+    usable = ~constant
+    penalised = usable & (v > 0)
+    if not penalised.any():
+        raise ValueError("no penalised term with any spread: nothing for the penalty to choose")
+    null_dev = solver.null_deviance()
+    if null_dev <= 0:
+        raise ValueError("the response has no variation: there is nothing to explain")
+    tol_abs = tol * null_dev / n
+    solver.tol = tol_abs
+
+    issues = []
+    unpenalised = np.flatnonzero(usable & (v == 0)).astype(np.int64)
+    zeros = np.zeros(p)
+    if unpenalised.size:
+        _, ok = solver.solve(zeros, zeros, unpenalised)
+        if not ok:
+            issues.append("the model with only the always-kept terms did not converge")
+    grad = solver.gradient().copy()
+
+    lam_max = float(np.max(np.abs(grad[penalised]) / (max(mix, MIX_FLOOR) * v[penalised])))
+    if penalties is None:
+        ratio = penalty_ratio if penalty_ratio is not None else (1e-4 if n > p else 1e-2)
+        if not 0 < ratio < 1:
+            raise ValueError("penalty_ratio must lie strictly between 0 and 1")
+        if lam_max <= 0:
+            raise ValueError("no predictor is related to the response at all (every gradient is 0)")
+        grid = lam_max * np.logspace(0, np.log10(ratio), int(n_penalties))
+        automatic = True
+    else:
+        grid = np.sort(np.asarray(penalties, dtype=float).ravel())[::-1]
+        if grid.size == 0 or np.any(grid < 0) or not np.all(np.isfinite(grid)):
+            raise ValueError("penalties must be finite and non-negative")
+        automatic = False
+
+    K = grid.size
+    out = {k: [] for k in ("b0", "beta", "dev", "iters", "kkt", "refits")}
+    ever_active = np.zeros(p, dtype=bool)
+    ever_active[unpenalised] = True
+    lam_prev = max(lam_max, grid[0])
+    stop_reason = "end of grid"
+    for k, lam in enumerate(grid):
+        l1 = lam * mix * v
+        l2 = lam * (1 - mix) * v
+        strong = usable & (np.abs(grad) >= mix * v * (2 * lam - lam_prev))
+        ws_mask = ever_active | strong
+        iters, refits = 0, 0
+        while True:
+            ws = np.flatnonzero(ws_mask).astype(np.int64)
+            sweeps, ok = solver.solve(l1, l2, ws)
+            iters += sweeps
+            if not ok:
+                issues.append(f"the fit at penalty {lam:.4g} (step {k}) stopped at the iteration cap "
+                              "before converging; its coefficients are approximate")
+            if hasattr(solver, "refresh"):
+                solver.refresh()
+            grad = solver.gradient().copy()
+            violators = usable & ~ws_mask & (np.abs(grad) > l1 * (1 + 1e-9))
+            if not violators.any():
+                break
+            ws_mask |= violators
+            refits += 1
+        beta = solver.beta.copy()
+        ever_active |= beta != 0
+        out["b0"].append(solver.intercept)
+        out["beta"].append(beta)
+        out["dev"].append(solver.deviance())
+        out["iters"].append(iters)
+        out["kkt"].append(_kkt_violation(grad, beta, l1, l2, usable))
+        out["refits"].append(refits)
+        lam_prev = lam
+        ratio_now = 1 - out["dev"][-1] / null_dev
+        if ratio_now > SATURATED:
+            stop_reason = "deviance explained above 0.999"
+            if k + 1 < K:
+                issues.append(_saturation_message(fam.name, lam))
+            break
+        if automatic and k + 1 >= MIN_STEPS_BEFORE_STOP:
+            ratio_before = 1 - out["dev"][-2] / null_dev
+            if ratio_now - ratio_before < SMALL_CHANGE * abs(ratio_now):
+                stop_reason = "deviance explained stopped changing"
+                break
+
+    coef_std = np.array(out["beta"])
+    intercept_std = np.array(out["b0"], dtype=float)
+    coef = coef_std / scale
+    intercept = intercept_std - coef @ mean
+    deviance = np.array(out["dev"], dtype=float)
+    for message in issues:
+        warnings.warn(message, FitWarning, stacklevel=2)
+    return PathResult(
+        family=fam.name, mix=mix, names=names, penalties=grid[: len(deviance)].copy(),
+        intercept=intercept, coef=coef, intercept_std=intercept_std, coef_std=coef_std,
+        deviance=deviance, null_deviance=float(null_dev),
+        deviance_ratio=1 - deviance / null_dev, n_terms=(coef_std != 0).sum(axis=1),
+        n_iter=np.array(out["iters"]), kkt_violation=np.array(out["kkt"]),
+        kkt_refits=np.array(out["refits"]), center=mean, scale=scale, term_weights=v,
+        n_obs=n, standardize=bool(standardize), stop_reason=stop_reason, warnings=tuple(issues),
+    )
+
+
+def _kkt_violation(grad, beta, l1, l2, usable):
+    """Largest violation of the KKT conditions (gradient units; 0 at an exact solution).
+
+    Zero coefficients need ``|g_j| <= l1_j``; non-zero ones need
+    ``g_j - l2_j b_j = l1_j sign(b_j)``.
+    """
+    nonzero = beta != 0
+    at_zero = np.maximum(np.abs(grad) - l1, 0.0)
+    off_zero = np.abs(grad - l2 * beta - l1 * np.sign(beta))
+    viol = np.where(nonzero, off_zero, at_zero)
+    return float(np.max(viol[usable], initial=0.0))
+
+
+def _check_response(family, y):
+    if family == "binomial" and (np.any(y < 0) or np.any(y > 1)):
+        raise ValueError("a binomial response must lie between 0 and 1 (0/1 for presence/absence)")
+    if family == "poisson" and np.any(y < 0):
+        raise ValueError("a Poisson response must be non-negative counts")
+
+
+def _saturation_message(family, lam):
+    if family == "binomial":
+        return (f"the path stopped at penalty {lam:.4g}: the model separates presences from "
+                "absences almost perfectly (deviance explained > 0.999); smaller penalties "
+                "would give unbounded coefficients")
+    return (f"the path stopped at penalty {lam:.4g}: the model fits the data almost "
+            "perfectly (deviance explained > 0.999)")

@@ -1,0 +1,218 @@
+"""The two solvers behind a path: one holds its state, solves at one penalty.
+
+A solver owns the current coefficients (on the standardised scale) and knows
+how to (a) minimise the penalised objective over a working set of terms, (b)
+return the gradient of the log-likelihood part for every term (for strong
+rules and the KKT check) and (c) report the deviance. The path driver in
+:mod:`pathfinder.core.path` decides which terms are in the working set.
+
+* :class:`GramSolver`  Gaussian response with n > p: coordinate descent on the
+  weighted Gram matrix, computed once in row blocks without copying X.
+* :class:`NaiveSolver` any family: IRLS (Newton) outer loop with
+  coordinate descent on one standardised copy of X inside, step halving when
+  the penalised objective does not decrease.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.linalg.blas import dsyrk
+
+from .families import Family, null_intercept
+from .kernels import cd_gram, cd_naive, weighted_sq_norms
+
+ROW_BLOCK = 8192  # rows per block when X is read in pieces
+
+
+def weighted_mean(X, w):
+    """Weighted column means of X (``w`` sums to n)."""
+    return (w @ X) / X.shape[0]
+
+
+def scale_from_variance(var, mean, standardize):
+    """Population SDs as scales; columns with no spread get scale 1 and a flag.
+
+    A flagged column's centred values are exactly 0, so it never enters a model.
+    """
+    sd = np.sqrt(np.maximum(var, 0.0))
+    constant = sd <= 1e-10 * np.maximum(np.abs(mean), 1.0)
+    scale = np.where(constant | (not standardize), 1.0, sd)
+    return scale, constant
+
+
+def centred_gram(X, w, mean, z):
+    """``(X - mean)' W (X - mean) / n`` and ``(X - mean)' W z / n``, read in row blocks.
+
+    Never holds more than one block of centred rows besides X itself. With
+    uniform weights the symmetric rank-k update (BLAS syrk) does half the work.
+    """
+    n, p = X.shape
+    G = np.zeros((p, p), order="F")
+    c = np.zeros(p)
+    uniform = bool(np.all(w == w[0]))
+    for start in range(0, n, ROW_BLOCK):
+        rows = slice(start, start + ROW_BLOCK)
+        block = np.asarray(X[rows], dtype=np.float64) - mean
+        if uniform:
+            G = dsyrk(w[0], block, beta=1.0, c=G, trans=1, overwrite_c=1)
+            c += w[0] * (z[rows] @ block)
+        else:
+            wb = block * w[rows, None]
+            G += block.T @ wb
+            c += z[rows] @ wb
+    upper = np.triu(G)
+    G = upper + np.triu(G, 1).T if uniform else G
+    return G / n, c / n
+
+
+def standardised_copy(X, mean, w, standardize):
+    """One Fortran-ordered float64 copy of X, centred and scaled in place.
+
+    Returns the copy, the scales and the flags of columns with no spread.
+    """
+    n, p = X.shape
+    Xs = np.empty((n, p), dtype=np.float64, order="F")
+    var = np.empty(p)
+    for j in range(p):
+        Xs[:, j] = X[:, j]
+        Xs[:, j] -= mean[j]
+        var[j] = w @ (Xs[:, j] * Xs[:, j]) / n
+    scale, constant = scale_from_variance(var, mean, standardize)
+    for j in range(p):
+        if scale[j] != 1.0:
+            Xs[:, j] /= scale[j]
+    return Xs, scale, constant
+
+
+def penalty_value(beta, l1, l2):
+    return float(np.sum(l1 * np.abs(beta)) + 0.5 * np.sum(l2 * beta * beta))
+
+
+class GramSolver:
+    """Gaussian, n > p: covariance updates on ``G = Xs'WXs / n``."""
+
+    def __init__(self, G, c, yy, ybar, n, tol, max_sweeps):
+        self.n = n
+        self.ybar = ybar
+        self.G = np.ascontiguousarray(G)
+        self.c = c
+        self.yy = yy
+        self.beta = np.zeros(G.shape[0])
+        self.grad = self.c.copy()
+        self.tol = tol
+        self.max_sweeps = max_sweeps
+
+    @classmethod
+    def from_data(cls, X, y, w, offset, mean, standardize, tol, max_sweeps):
+        """Build from the data; returns the solver, the scales and the no-spread flags."""
+        n = X.shape[0]
+        z = y - offset
+        ybar = float(w @ z / n)
+        zc = z - ybar
+        G, c = centred_gram(X, w, mean, zc)
+        scale, constant = scale_from_variance(np.diag(G).copy(), mean, standardize)
+        G /= scale[:, None] * scale[None, :]
+        c /= scale
+        yy = float(w @ (zc * zc) / n)
+        return cls(G, c, yy, ybar, n, tol, max_sweeps), scale, constant
+
+    @property
+    def intercept(self):
+        return self.ybar
+
+    def solve(self, l1, l2, ws):
+        sweeps = cd_gram(self.G, self.grad, self.beta, ws, l1, l2, self.tol, self.max_sweeps)
+        return sweeps, sweeps < self.max_sweeps
+
+    def gradient(self):
+        return self.grad
+
+    def deviance(self):
+        b = self.beta
+        return max(self.n * (self.yy - b @ self.c - b @ self.grad), 0.0)
+
+    def null_deviance(self):
+        return self.n * self.yy
+
+
+class NaiveSolver:
+    """Any family: IRLS with naive coordinate descent on a standardised copy."""
+
+    def __init__(self, Xs, y, w, offset, family: Family, tol, max_sweeps, max_newton=100):
+        self.Xs = Xs
+        self.y = y
+        self.w = w
+        self.offset = offset
+        self.family = family
+        self.n, p = Xs.shape
+        self.beta = np.zeros(p)
+        self.b0 = null_intercept(family, y, w, offset)
+        self.eta = self.b0 + offset
+        self.mu = family.inverse_link(self.eta)
+        self._null_deviance = family.deviance(y, self.mu, w)
+        self.xv = np.zeros(p)
+        self.tol = tol
+        self.max_sweeps = max_sweeps
+        self.max_newton = max_newton
+        self.step_halvings = 0
+
+    @property
+    def intercept(self):
+        return self.b0
+
+    def _objective(self, eta, beta, l1, l2):
+        mu = self.family.inverse_link(eta)
+        return self.family.deviance(self.y, mu, self.w) / (2 * self.n) + penalty_value(beta, l1, l2)
+
+    def solve(self, l1, l2, ws):
+        fam = self.family
+        total_sweeps = 0
+        objective = self._objective(self.eta, self.beta, l1, l2)
+        gaussian = fam.name == "gaussian"
+        for _ in range(self.max_newton):
+            W, resid, _ = fam.working(self.y, self.eta, self.w)
+            r = resid.copy()
+            weighted_sq_norms(self.Xs, W, ws, self.xv)
+            beta_old, b0_old, eta_old = self.beta.copy(), self.b0, self.eta
+            self.b0, sweeps = cd_naive(self.Xs, W, r, self.beta, self.b0, ws, self.xv,
+                                       l1, l2, True, self.tol, self.max_sweeps)
+            total_sweeps += sweeps
+            if sweeps >= self.max_sweeps:
+                self._set_eta(eta_old + resid - r)
+                return total_sweeps, False
+            eta_new = eta_old + resid - r  # z - r, where z = eta_old + resid
+            new_objective = self._objective(eta_new, self.beta, l1, l2)
+            halvings = 0
+            while new_objective > objective * (1 + 1e-12) + 1e-15 and halvings < 30:
+                # Newton overshot: step halving back towards the previous point
+                self.beta = 0.5 * (self.beta + beta_old)
+                self.b0 = 0.5 * (self.b0 + b0_old)
+                eta_new = 0.5 * (eta_new + eta_old)
+                new_objective = self._objective(eta_new, self.beta, l1, l2)
+                halvings += 1
+            self.step_halvings += halvings
+            self._set_eta(eta_new)
+            db = self.beta - beta_old
+            change = max(float(np.max(self.xv[ws] * db[ws] ** 2, initial=0.0)),
+                         float(W.sum() / self.n * (self.b0 - b0_old) ** 2))
+            objective = new_objective
+            if gaussian or change < self.tol:
+                return total_sweeps, True
+        return total_sweeps, False
+
+    def _set_eta(self, eta):
+        self.eta = eta
+        self.mu = self.family.inverse_link(eta)
+
+    def refresh(self):
+        """Recompute the linear predictor from the coefficients (drops round-off)."""
+        self._set_eta(self.b0 + self.Xs @ self.beta + self.offset)
+
+    def gradient(self):
+        return self.Xs.T @ (self.w * (self.y - self.mu)) / self.n
+
+    def deviance(self):
+        return self.family.deviance(self.y, self.mu, self.w)
+
+    def null_deviance(self):
+        return self._null_deviance
