@@ -179,8 +179,11 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     offset : added to the linear predictor (log survey effort for counts).
     weights : observation weights ``>= 0``, rescaled to sum to n.
     standardize : fit on standardised predictors (default) or on X as given.
-    tol : convergence threshold on the largest weighted squared coefficient
-        change, relative to the null deviance per observation.
+    tol : convergence threshold: iterations stop once no standardised
+        coefficient moves by more than about ``tol`` (relative to the spread of
+        the response) in a sweep; precisely, once the largest
+        ``(1/n) sum_i W_i x_ij^2 * change_j^2`` falls below
+        ``tol^2 * null deviance / n``.
     """
     if not 0.0 <= float(mix) <= 1.0:
         raise ValueError(f"mix must lie between 0 (ridge) and 1 (lasso), got {mix}")
@@ -227,8 +230,12 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     null_dev = solver.null_deviance()
     if null_dev <= 0:
         raise ValueError("the response has no variation: there is nothing to explain")
-    tol_abs = tol * null_dev / n
+    # Converged when no coefficient moved by more than tol (in SDs of the
+    # working response): the largest weighted squared change is below tol^2
+    # times the null deviance per observation.
+    tol_abs = tol * tol * null_dev / n
     solver.tol = tol_abs
+    solver.loose_tol = 1e-8 * null_dev / n
 
     issues = []
     unpenalised = np.flatnonzero(usable & (v == 0)).astype(np.int64)
@@ -240,6 +247,7 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     grad = solver.gradient().copy()
 
     lam_max = float(np.max(np.abs(grad[penalised]) / (max(mix, MIX_FLOOR) * v[penalised])))
+    lam_zero = lam_max if mix >= MIX_FLOOR else (lam_max * MIX_FLOOR / mix if mix > 0 else np.inf)
     if penalties is None:
         ratio = penalty_ratio if penalty_ratio is not None else (1e-4 if n > p else 1e-2)
         if not 0 < ratio < 1:
@@ -259,6 +267,7 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     ever_active = np.zeros(p, dtype=bool)
     ever_active[unpenalised] = True
     lam_prev = max(lam_max, grid[0])
+    unconverged = []
     stop_reason = "end of grid"
     for k, lam in enumerate(grid):
         l1 = lam * mix * v
@@ -266,13 +275,12 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
         strong = usable & (np.abs(grad) >= mix * v * (2 * lam - lam_prev))
         ws_mask = ever_active | strong
         iters, refits = 0, 0
-        while True:
+        while lam < lam_zero:  # from lam_zero up the answer is known: no penalised term
             ws = np.flatnonzero(ws_mask).astype(np.int64)
             sweeps, ok = solver.solve(l1, l2, ws)
             iters += sweeps
-            if not ok:
-                issues.append(f"the fit at penalty {lam:.4g} (step {k}) stopped at the iteration cap "
-                              "before converging; its coefficients are approximate")
+            if not ok and (not unconverged or unconverged[-1] != k):
+                unconverged.append(k)
             if hasattr(solver, "refresh"):
                 solver.refresh()
             grad = solver.gradient().copy()
@@ -302,6 +310,8 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
                 stop_reason = "deviance explained stopped changing"
                 break
 
+    if unconverged:
+        issues.append(_unconverged_message(unconverged, grid))
     coef_std = np.array(out["beta"])
     intercept_std = np.array(out["b0"], dtype=float)
     coef = coef_std / scale
@@ -338,6 +348,14 @@ def _check_response(family, y):
         raise ValueError("a binomial response must lie between 0 and 1 (0/1 for presence/absence)")
     if family == "poisson" and np.any(y < 0):
         raise ValueError("a Poisson response must be non-negative counts")
+
+
+def _unconverged_message(steps, grid):
+    where = (f"penalty {grid[steps[0]]:.4g} (step {steps[0]})" if len(steps) == 1 else
+             f"{len(steps)} penalties between {grid[steps[-1]]:.4g} and {grid[steps[0]]:.4g} "
+             f"(steps {steps[0]} to {steps[-1]})")
+    return (f"the fit at {where} stopped at the iteration cap before converging; those "
+            "coefficients are approximate")
 
 
 def _saturation_message(family, lam):

@@ -168,6 +168,7 @@ class NaiveSolver:
         self.max_sweeps = max_sweeps
         self.max_newton = max_newton
         self.step_halvings = 0
+        self.loose_tol = 0.0  # first inner tolerance of a Newton loop (set by the path)
 
     @property
     def intercept(self):
@@ -178,17 +179,26 @@ class NaiveSolver:
         return self.family.deviance(self.y, mu, self.w) / (2 * self.n) + penalty_value(beta, l1, l2)
 
     def solve(self, l1, l2, ws):
+        """IRLS: each Newton step solves a penalised weighted least-squares problem.
+
+        The inner tolerance starts loose and tightens with the Newton steps
+        (a thousandth of the last step's change, never below ``tol``), so early
+        steps, whose quadratic approximation is about to be replaced anyway,
+        cost few sweeps. Convergence needs a step whose change is below ``tol``
+        with the inner loop held to ``tol`` itself.
+        """
         fam = self.family
         total_sweeps = 0
         objective = self._objective(self.eta, self.beta, l1, l2)
         gaussian = fam.name == "gaussian"
+        inner_tol = self.tol if gaussian else max(self.tol, self.loose_tol)
         for _ in range(self.max_newton):
             W, resid, _ = fam.working(self.y, self.eta, self.w)
             r = resid.copy()
             weighted_sq_norms(self.Xs, W, ws, self.xv)
             beta_old, b0_old, eta_old = self.beta.copy(), self.b0, self.eta
             self.b0, sweeps = cd_naive(self.Xs, W, r, self.beta, self.b0, ws, self.xv,
-                                       l1, l2, True, self.tol, self.max_sweeps)
+                                       l1, l2, True, inner_tol, self.max_sweeps)
             total_sweeps += sweeps
             if sweeps >= self.max_sweeps:
                 self._set_eta(eta_old + resid - r)
@@ -209,8 +219,9 @@ class NaiveSolver:
             change = max(float(np.max(self.xv[ws] * db[ws] ** 2, initial=0.0)),
                          float(W.sum() / self.n * (self.b0 - b0_old) ** 2))
             objective = new_objective
-            if gaussian or change < self.tol:
+            if gaussian or (change < self.tol and inner_tol <= self.tol):
                 return total_sweeps, True
+            inner_tol = max(self.tol, min(inner_tol, 1e-3 * change))
         return total_sweeps, False
 
     def _set_eta(self, eta):

@@ -1,0 +1,1 @@
+"""Choosing a model: folds for cross-validation and the rules that pick along a path."""

@@ -1,0 +1,50 @@
+"""The run record (run.json): what was run, on what, with which versions."""
+
+from __future__ import annotations
+
+import platform
+from importlib import metadata
+
+PACKAGES = ("pathfinder", "numpy", "scipy", "pandas", "scikit-learn", "numba", "pyarrow")
+
+
+def package_versions() -> dict:
+    out = {"python": platform.python_version()}
+    for name in PACKAGES:
+        try:
+            out[name] = metadata.version(name)
+        except metadata.PackageNotFoundError:
+            out[name] = None
+    return out
+
+
+def run_record(study, command: str) -> dict:
+    """A JSON-ready dictionary describing one run."""
+    survey, info = study.survey, study.table_info
+    dropped_rows = survey.n_read - survey.n
+    record = {
+        "command": command,
+        "options": study.options.to_dict(),
+        "seed": study.options.seed,
+        "versions": package_versions(),
+        "input": None if info is None else {
+            "file": info.path.rsplit("/", 1)[-1], "format": info.format, "sha256": info.sha256,
+            "rows": info.n_rows, "columns": info.n_columns,
+        },
+        "rows": {"read": survey.n_read, "used": survey.n, "dropped": dropped_rows,
+                 "dropped_for_missing_value_in": dict(survey.dropped_missing)},
+        "response": {"column": survey.response_name, "family": survey.family,
+                     "family_reason": survey.family_reason,
+                     "labels": list(survey.response_labels) if survey.response_labels else None},
+        "predictors": {"kept": list(survey.predictors), "categorical": list(survey.categorical),
+                       "dropped": [list(d) for d in survey.dropped_predictors],
+                       "terms": list(study.design.names)},
+        "offset_rule": survey.offset_rule,
+        "paths": [{"method": method, "mix": mix, "penalties": len(fit.penalties),
+                   "stop_reason": fit.stop_reason}
+                  for (method, mix), fit in study.fits.items()],
+        "notes": list(survey.notes),
+        "warnings": list(study.warnings),
+        "timings_seconds": {k: round(v, 3) for k, v in study.timings.items()},
+    }
+    return record

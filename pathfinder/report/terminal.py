@@ -1,0 +1,49 @@
+"""The closing summary in the terminal (rich), and its machine-readable twin."""
+
+from __future__ import annotations
+
+from rich.console import Console
+from rich.table import Table
+
+
+def summary_dict(study, out) -> dict:
+    path = study.tables["path"]
+    return {
+        "output": str(out),
+        "rows_used": int(study.survey.n),
+        "rows_read": int(study.survey.n_read),
+        "family": study.survey.family,
+        "terms": len(study.design.names),
+        "paths": [
+            {"method": m, "mix": float(mix), "penalties": int(len(g)),
+             "largest_deviance_explained": float(g.deviance_explained.max())}
+            for (m, mix), g in path.groupby(["method", "mix"], sort=False)
+        ],
+        "warnings": list(study.warnings),
+    }
+
+
+def print_summary(study, out, console: Console | None = None) -> None:
+    console = console or Console()
+    survey = study.survey
+    console.print(f"[bold]{survey.response_name}[/bold]: {survey.family_reason}")
+    for note in survey.notes[1:]:
+        console.print(f"  {note}")
+    console.print(f"rows used {survey.n} of {survey.n_read}; {len(survey.predictors)} predictors "
+                  f"-> {len(study.design.names)} terms")
+    table = Table(title="models along the path", title_justify="left")
+    for column in ("method", "mix", "penalty", "terms", "deviance explained"):
+        table.add_column(column, justify="right" if column != "method" else "left")
+    path = study.tables["path"]
+    for (method, mix), g in path.groupby(["method", "mix"], sort=False):
+        picks = sorted({0, len(g) // 4, len(g) // 2, (3 * len(g)) // 4, len(g) - 1})
+        for i in picks:
+            row = g.iloc[i]
+            table.add_row(method, f"{mix:g}", f"{row.penalty:.4g}", str(int(row.n_terms)),
+                          f"{row.deviance_explained:.3f}")
+    console.print(table)
+    if study.warnings:
+        console.print("[bold yellow]warnings[/bold yellow]")
+        for message in study.warnings:
+            console.print(f"  - {message}")
+    console.print(f"results written to [bold]{out}[/bold]")
