@@ -148,7 +148,7 @@ def path_degrees_of_freedom(fit, X, weights=None, *, offset=None) -> np.ndarray:
         if gram is None:
             eta = fit.intercept_std[k] + Xs @ fit.coef_std[k, ever] + offset
             # The working weights w * V(mu) do not depend on y: any y will do.
-            working, _, _ = fam.working(np.zeros(n), eta, w)
+            _, working, _, _ = fam.evaluate(np.zeros(n), eta, w)
             G = _centred_gram(Xs[:, active], working)
         else:
             G = gram[np.ix_(active, active)]

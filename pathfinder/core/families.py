@@ -20,6 +20,8 @@ from typing import Callable
 import numpy as np
 from scipy.special import expit, xlogy
 
+from . import kernels
+
 # Bounds that keep the working weights of a nearly separated binomial fit, or
 # a Poisson fit with an enormous linear predictor, away from 0 and infinity.
 _PROB_EPS = 1e-5
@@ -40,20 +42,25 @@ class Family:
         """Weighted total deviance ``sum(w * d(y, mu))``."""
         return float(np.dot(w, self.unit_deviance(y, mu)))
 
-    def working(self, y, eta, w):
-        """IRLS working weights and working residual at ``eta``.
+    def evaluate(self, y, eta, w):
+        """Deviance, IRLS working weights, working residuals and means at ``eta``.
 
-        For the canonical links used here the derivative d mu / d eta equals
-        the variance, so the working weight is ``w * V(mu)`` and the working
-        residual is ``(y - mu) / V(mu)``.
+        For the canonical links used here d mu / d eta equals the variance, so
+        the working weight is ``w * V(mu)`` and the working residual is
+        ``(y - mu) / V(mu)``. The variance is floored so that a nearly
+        separated binomial fit or a vanishing Poisson mean cannot give a zero
+        weight. Returns ``(deviance, W, resid, mu)``.
         """
-        mu = self.inverse_link(eta)
-        v = self.variance(mu)
+        if self.name == "gaussian":
+            r = y - eta
+            return float(np.dot(w, r * r)), w, r, eta
+        n = y.shape[0]
+        W, resid, mu = np.empty(n), np.empty(n), np.empty(n)
         if self.name == "binomial":
-            v = np.maximum(v, _PROB_EPS * (1.0 - _PROB_EPS))
-        elif self.name == "poisson":
-            v = np.maximum(v, 1e-10)
-        return w * v, (y - mu) / v, mu
+            dev = kernels.binomial_evaluate(y, eta, w, _PROB_EPS, W, resid, mu)
+        else:
+            dev = kernels.poisson_evaluate(y, eta, w, _ETA_MAX, W, resid, mu)
+        return dev, W, resid, mu
 
 
 def _gaussian_dev(y, mu):

@@ -160,9 +160,8 @@ class NaiveSolver:
         self.n, p = Xs.shape
         self.beta = np.zeros(p)
         self.b0 = null_intercept(family, y, w, offset)
-        self.eta = self.b0 + offset
-        self.mu = family.inverse_link(self.eta)
-        self._null_deviance = family.deviance(y, self.mu, w)
+        self._set_eta(self.b0 + offset)
+        self._null_deviance = self.dev
         self.xv = np.zeros(p)
         self.tol = tol
         self.max_sweeps = max_sweeps
@@ -174,9 +173,10 @@ class NaiveSolver:
     def intercept(self):
         return self.b0
 
-    def _objective(self, eta, beta, l1, l2):
-        mu = self.family.inverse_link(eta)
-        return self.family.deviance(self.y, mu, self.w) / (2 * self.n) + penalty_value(beta, l1, l2)
+    def _set_eta(self, eta):
+        """Move to ``eta``: deviance, working weights, residuals and means there."""
+        self.eta = eta
+        self.dev, self.W, self.resid, self.mu = self.family.evaluate(self.y, eta, self.w)
 
     def solve(self, l1, l2, ws):
         """IRLS: each Newton step solves a penalised weighted least-squares problem.
@@ -185,36 +185,33 @@ class NaiveSolver:
         (a thousandth of the last step's change, never below ``tol``), so early
         steps, whose quadratic approximation is about to be replaced anyway,
         cost few sweeps. Convergence needs a step whose change is below ``tol``
-        with the inner loop held to ``tol`` itself.
+        with the inner loop held to ``tol`` itself. A step that raises the
+        penalised objective is halved back towards the previous point.
         """
-        fam = self.family
+        gaussian = self.family.name == "gaussian"
         total_sweeps = 0
-        objective = self._objective(self.eta, self.beta, l1, l2)
-        gaussian = fam.name == "gaussian"
+        objective = self.dev / (2 * self.n) + penalty_value(self.beta, l1, l2)
         inner_tol = self.tol if gaussian else max(self.tol, self.loose_tol)
         for _ in range(self.max_newton):
-            W, resid, _ = fam.working(self.y, self.eta, self.w)
+            W, resid = self.W, self.resid
             r = resid.copy()
             weighted_sq_norms(self.Xs, W, ws, self.xv)
             beta_old, b0_old, eta_old = self.beta.copy(), self.b0, self.eta
             self.b0, sweeps = cd_naive(self.Xs, W, r, self.beta, self.b0, ws, self.xv,
                                        l1, l2, True, inner_tol, self.max_sweeps)
             total_sweeps += sweeps
+            self._set_eta(eta_old + resid - r)  # z - r, where z = eta_old + resid
             if sweeps >= self.max_sweeps:
-                self._set_eta(eta_old + resid - r)
                 return total_sweeps, False
-            eta_new = eta_old + resid - r  # z - r, where z = eta_old + resid
-            new_objective = self._objective(eta_new, self.beta, l1, l2)
+            new_objective = self.dev / (2 * self.n) + penalty_value(self.beta, l1, l2)
             halvings = 0
             while new_objective > objective * (1 + 1e-12) + 1e-15 and halvings < 30:
-                # Newton overshot: step halving back towards the previous point
                 self.beta = 0.5 * (self.beta + beta_old)
                 self.b0 = 0.5 * (self.b0 + b0_old)
-                eta_new = 0.5 * (eta_new + eta_old)
-                new_objective = self._objective(eta_new, self.beta, l1, l2)
+                self._set_eta(0.5 * (self.eta + eta_old))
+                new_objective = self.dev / (2 * self.n) + penalty_value(self.beta, l1, l2)
                 halvings += 1
             self.step_halvings += halvings
-            self._set_eta(eta_new)
             db = self.beta - beta_old
             change = max(float(np.max(self.xv[ws] * db[ws] ** 2, initial=0.0)),
                          float(W.sum() / self.n * (self.b0 - b0_old) ** 2))
@@ -224,10 +221,6 @@ class NaiveSolver:
             inner_tol = max(self.tol, min(inner_tol, 1e-3 * change))
         return total_sweeps, False
 
-    def _set_eta(self, eta):
-        self.eta = eta
-        self.mu = self.family.inverse_link(eta)
-
     def refresh(self):
         """Recompute the linear predictor from the coefficients (drops round-off)."""
         self._set_eta(self.b0 + self.Xs @ self.beta + self.offset)
@@ -236,7 +229,7 @@ class NaiveSolver:
         return self.Xs.T @ (self.w * (self.y - self.mu)) / self.n
 
     def deviance(self):
-        return self.family.deviance(self.y, self.mu, self.w)
+        return self.dev
 
     def null_deviance(self):
         return self._null_deviance
