@@ -163,7 +163,7 @@ def _check_vector(v, n, what):
 
 def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=100,
              penalty_ratio=None, term_weights=None, offset=None, weights=None,
-             standardize=True, tol=1e-7, max_sweeps=100_000) -> PathResult:
+             standardize=True, tol=1e-7, max_sweeps=100_000, rows=None) -> PathResult:
     """Fit a lasso / elastic-net / ridge path of a Gaussian, binomial or Poisson GLM.
 
     Parameters
@@ -179,6 +179,9 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     offset : added to the linear predictor (log survey effort for counts).
     weights : observation weights ``>= 0``, rescaled to sum to n.
     standardize : fit on standardised predictors (default) or on X as given.
+    rows : fit on these rows of X only (y, offset and weights are given for
+        all rows of X too). X is then read row block by row block and never
+        copied whole: this is how folds and subsamples are fitted.
     tol : convergence threshold: iterations stop once no standardised
         coefficient moves by more than about ``tol`` (relative to the spread of
         the response) in a sweep; precisely, once the largest
@@ -197,31 +200,33 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
         raise ValueError("X must be two-dimensional (rows = sites, columns = predictors)")
     if not np.issubdtype(X.dtype, np.number):
         X = X.astype(float)
-    n, p = X.shape
+    n_all, p = X.shape
     if names is None:
         names = tuple(f"x{j}" for j in range(p))
-    y = _check_vector(y, n, "y")
-    if not np.all(np.isfinite(X)):
+    y = _check_vector(y, n_all, "y")
+    offset = np.zeros(n_all) if offset is None else _check_vector(offset, n_all, "offset")
+    w = np.ones(n_all) if weights is None else _check_vector(weights, n_all, "weights")
+    if rows is not None:
+        rows = np.asarray(rows, dtype=np.int64)
+        y, offset, w = y[rows], offset[rows], w[rows]
+    elif not np.all(np.isfinite(X)):
         raise ValueError("X contains missing or infinite values")
-    offset = np.zeros(n) if offset is None else _check_vector(offset, n, "offset")
-    if weights is None:
-        w = np.ones(n)
-    else:
-        w = _check_vector(weights, n, "weights")
-        if np.any(w < 0) or w.sum() <= 0:
-            raise ValueError("weights must be non-negative and not all zero")
-        w = w * (n / w.sum())
+    n = y.shape[0]
+    if np.any(w < 0) or w.sum() <= 0:
+        raise ValueError("weights must be non-negative and not all zero")
+    w = w * (n / w.sum())
     v = np.ones(p) if term_weights is None else _check_vector(term_weights, p, "term_weights")
     if np.any(v < 0):
         raise ValueError("term_weights must be non-negative")
     _check_response(fam.name, y)
 
     use_gram = fam.name == "gaussian" and n > p and p <= GRAM_MAX_TERMS
-    mean = weighted_mean(X, w)
+    mean = weighted_mean(X, w, rows)
     if use_gram:
-        solver, scale, constant = GramSolver.from_data(X, y, w, offset, mean, standardize, 1.0, max_sweeps)
+        solver, scale, constant = GramSolver.from_data(X, y, w, offset, mean, standardize, 1.0,
+                                                       max_sweeps, rows)
     else:
-        Xs, scale, constant = standardised_copy(X, mean, w, standardize)
+        Xs, scale, constant = standardised_copy(X, mean, w, standardize, rows)
         solver = NaiveSolver(Xs, y, w, offset, fam, 1.0, max_sweeps)
     usable = ~constant
     penalised = usable & (v > 0)

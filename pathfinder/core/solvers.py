@@ -28,9 +28,29 @@ def block_rows(p):
     return max(1024, BLOCK_BYTES // (8 * max(p, 1)))
 
 
-def weighted_mean(X, w):
-    """Weighted column means of X (``w`` sums to n)."""
-    return (w @ X) / X.shape[0]
+def row_blocks(X, rows=None):
+    """Yield ``(positions, block)``: X's rows (all, or those in ``rows``) as float64 blocks.
+
+    ``positions`` index the rows of the fit (0..n-1). Only one block of
+    ``rows`` is ever copied at a time, so a fit on a subsample (a fold, a half
+    sample) never copies the whole of X.
+    """
+    n = X.shape[0] if rows is None else len(rows)
+    step = block_rows(X.shape[1])
+    for start in range(0, n, step):
+        where = slice(start, min(start + step, n))
+        source = where if rows is None else rows[where]
+        yield where, np.array(X[source], dtype=np.float64)  # a copy: callers work in place
+
+
+def weighted_mean(X, w, rows=None):
+    """Weighted column means of X's rows (``w`` sums to the number of rows)."""
+    if rows is None:
+        return (w @ X) / X.shape[0]
+    total = np.zeros(X.shape[1])
+    for where, block in row_blocks(X, rows):
+        total += w[where] @ block
+    return total / len(rows)
 
 
 def scale_from_variance(var, mean, standardize):
@@ -44,16 +64,17 @@ def scale_from_variance(var, mean, standardize):
     return scale, constant
 
 
-def centred_gram(X, w, mean, z):
-    """``(X - mean)' W (X - mean) / n`` and ``(X - mean)' W z / n``, read in row blocks.
+def centred_gram(X, w, mean, z, rows=None):
+    """``(X - mean)' W (X - mean) / n`` and ``(X - mean)' W z / n``.
 
-    With uniform weights this is one symmetric rank-k update of X itself
-    (no copy); otherwise X is read in row blocks, holding at most one block of
-    centred, weighted rows besides X.
+    With uniform weights and all rows this is one symmetric rank-k update of
+    X itself (no copy); otherwise X is read in row blocks, holding at most one
+    block of centred, weighted rows besides X.
     """
-    n, p = X.shape
+    p = X.shape[1]
+    n = X.shape[0] if rows is None else len(rows)
     uniform = bool(np.all(w == w[0]))
-    if uniform and X.dtype == np.float64:
+    if uniform and rows is None and X.dtype == np.float64:
         # Raw cross-products, then the centring correction: no copy of X at all.
         # The correction loses about log10(mean^2 / variance) digits, so this
         # route is taken only while that loss stays below 8 of the 16 digits.
@@ -65,29 +86,28 @@ def centred_gram(X, w, mean, z):
             return G * (w[0] / n), c * (w[0] / n)
     G = np.zeros((p, p))
     c = np.zeros(p)
-    rows_per_block = block_rows(p)
-    for start in range(0, n, rows_per_block):
-        rows = slice(start, start + rows_per_block)
-        block = np.asarray(X[rows], dtype=np.float64) - mean
-        c += (w[rows] * z[rows]) @ block
+    for where, block in row_blocks(X, rows):
+        block -= mean
+        c += (w[where] * z[where]) @ block
         if not uniform:
-            block *= np.sqrt(w[rows])[:, None]
+            block *= np.sqrt(w[where])[:, None]
         G += block.T @ block
     if uniform:
         G *= w[0]
     return G / n, c / n
 
 
-def standardised_copy(X, mean, w, standardize):
-    """One Fortran-ordered float64 copy of X, centred and scaled in place.
+def standardised_copy(X, mean, w, standardize, rows=None):
+    """One Fortran-ordered float64 copy of X's rows, centred and scaled in place.
 
     Returns the copy, the scales and the flags of columns with no spread.
     """
-    n, p = X.shape
+    p = X.shape[1]
+    n = X.shape[0] if rows is None else len(rows)
     Xs = np.empty((n, p), dtype=np.float64, order="F")
     var = np.empty(p)
     for j in range(p):
-        Xs[:, j] = X[:, j]
+        Xs[:, j] = X[:, j] if rows is None else X[rows, j]
         Xs[:, j] -= mean[j]
         var[j] = w @ (Xs[:, j] * Xs[:, j]) / n
     scale, constant = scale_from_variance(var, mean, standardize)
@@ -116,13 +136,13 @@ class GramSolver:
         self.max_sweeps = max_sweeps
 
     @classmethod
-    def from_data(cls, X, y, w, offset, mean, standardize, tol, max_sweeps):
+    def from_data(cls, X, y, w, offset, mean, standardize, tol, max_sweeps, rows=None):
         """Build from the data; returns the solver, the scales and the no-spread flags."""
-        n = X.shape[0]
+        n = y.shape[0]
         z = y - offset
         ybar = float(w @ z / n)
         zc = z - ybar
-        G, c = centred_gram(X, w, mean, zc)
+        G, c = centred_gram(X, w, mean, zc, rows)
         scale, constant = scale_from_variance(np.diag(G).copy(), mean, standardize)
         G /= scale[:, None] * scale[None, :]
         c /= scale

@@ -195,3 +195,28 @@ def test_constant_column_never_enters():
     fit = fit_path(X, y, penalty_ratio=1e-3)
     assert np.all(fit.coef[:, 2] == 0)
     assert np.all(np.isfinite(fit.coef))
+
+
+@pytest.mark.parametrize("family", FAMILIES)
+@pytest.mark.parametrize("weighted", [False, True])
+def test_fitting_on_rows_equals_fitting_on_the_subset(family, weighted):
+    X, y = _data(12, family, n=150, p=6)
+    w = np.random.default_rng(2).uniform(0.5, 2, 150) if weighted else None
+    rows = np.random.default_rng(3).choice(150, 90, replace=False)
+    on_rows = fit_path(X, y, family=family, weights=w, rows=rows, n_penalties=20)
+    subset = fit_path(X[rows], y[rows], family=family, weights=None if w is None else w[rows],
+                      penalties=on_rows.penalties)
+    assert np.allclose(on_rows.coef, subset.coef, atol=1e-10)
+    assert np.allclose(on_rows.intercept, subset.intercept, atol=1e-10)
+
+
+@pytest.mark.parametrize("family", FAMILIES)
+def test_the_callers_data_are_never_changed(family):
+    X, y = _data(13, family, n=120, p=5)
+    w = np.random.default_rng(4).uniform(0.5, 2, 120)
+    off = np.full(120, 0.2)
+    before = [a.copy() for a in (X, y, w, off)]
+    fit_path(X, y, family=family, weights=w, offset=off, n_penalties=10)
+    fit_path(X, y, family=family, weights=w, offset=off, n_penalties=10, rows=np.arange(60))
+    for a, b in zip((X, y, w, off), before):
+        assert np.array_equal(a, b)
