@@ -1,0 +1,217 @@
+"""Cross-validation of penalised paths: curves, picks, and the best mix.
+
+Every mix value is fitted on the full data once to fix its penalty grid; then
+each fold's training rows are fitted on that same grid and scored on the
+fold's held-out rows. The curve is the mean of the fold scores at each penalty,
+with its standard error ``sd(fold scores) / sqrt(K)`` (the unweighted mean over
+folds, as in scikit-learn's ``LassoCV``).
+
+Two picks per curve:
+
+* ``min``     the penalty with the best mean held-out score;
+* ``one_se``  the largest penalty whose mean is within one standard error of
+  that best mean (the one-standard-error rule: Breiman, Friedman, Olshen &
+  Stone 1984; Hastie, Tibshirani & Friedman 2009, section 7.10). It never has
+  a smaller penalty than ``min``, so it keeps the same or fewer terms.
+
+The work is split into one task per (mix, fold), run through
+:func:`pathfinder.parallel.run_tasks`, so folds and mixes run in parallel
+and the results do not depend on how many workers ran them.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from ..core import fit_path
+from ..core.families import get_family, null_intercept
+from .metrics import METRICS, score
+
+RULES = ("min", "one_se")
+
+
+@dataclass(frozen=True, eq=False)
+class Problem:
+    """What every fit of a run shares; it travels to each worker once."""
+
+    X: np.ndarray
+    y: np.ndarray
+    family: str
+    names: tuple
+    offset: np.ndarray | None = None
+    weights: np.ndarray | None = None
+    standardize: bool = True
+    term_weights: np.ndarray | None = None
+
+    @property
+    def n(self) -> int:
+        return self.y.shape[0]
+
+    def fit(self, rows=None, **options):
+        return fit_path(self.X, self.y, family=self.family, offset=self.offset,
+                        weights=self.weights, standardize=self.standardize,
+                        term_weights=self.term_weights, rows=rows, **options)
+
+    def part(self, values, rows):
+        return None if values is None else values[rows]
+
+    def linear_predictor(self, intercept, coef, rows):
+        """(len(rows), K) linear predictors for intercepts (K,) and coefficients (K, p)."""
+        eta = self.X[rows] @ coef.T + intercept
+        if self.offset is not None:
+            eta += self.offset[rows][:, None]
+        return eta
+
+
+@dataclass(frozen=True)
+class FoldTask:
+    mix: float
+    fold: int
+    train: np.ndarray
+    test: np.ndarray
+    penalties: np.ndarray
+    metrics: tuple
+
+
+@dataclass(frozen=True, eq=False)
+class FoldScores:
+    mix: float
+    fold: int
+    held_out: dict          # metric -> (K,)
+    training: np.ndarray    # (K,) mean training deviance
+    n_fitted: int           # penalties actually fitted (a saturated path stops early)
+
+
+def score_path(problem: Problem, fit, rows, metrics, *, null_rows=None):
+    """Each metric of a fitted path on ``rows``: dict metric -> (K,).
+
+    Penalties the path did not reach (it stopped early) repeat the last
+    fitted model, so every curve has the grid's length.
+    """
+    fam = get_family(problem.family)
+    eta = problem.linear_predictor(fit.intercept, fit.coef, rows)
+    mu = fam.inverse_link(eta)
+    y = problem.y[rows]
+    w = problem.part(problem.weights, rows)
+    out = {}
+    mu_null = None
+    if "deviance_explained" in metrics:
+        train = null_rows
+        w_train = problem.part(problem.weights, train)
+        w_train = np.ones(len(train)) if w_train is None else w_train * len(train) / w_train.sum()
+        off_train = problem.part(problem.offset, train)
+        b0 = null_intercept(fam, problem.y[train], w_train,
+                            np.zeros(len(train)) if off_train is None else off_train)
+        off = problem.part(problem.offset, rows)
+        mu_null = fam.inverse_link(b0 + (0.0 if off is None else off))
+    for metric in metrics:
+        out[metric] = np.array([score(metric, y, mu[:, k], fam.name, w, mu_null)
+                                for k in range(mu.shape[1])])
+    return out
+
+
+def _pad(values, length):
+    if len(values) >= length:
+        return values[:length]
+    return np.concatenate([values, np.repeat(values[-1:], length - len(values))])
+
+
+def run_fold(problem: Problem, task: FoldTask) -> FoldScores:
+    """Fit one fold's training rows on the shared grid and score its held-out rows."""
+    fit = problem.fit(rows=task.train, mix=task.mix, penalties=task.penalties)
+    K = len(task.penalties)
+    held = score_path(problem, fit, task.test, task.metrics, null_rows=task.train)
+    training = fit.deviance / len(task.train)
+    return FoldScores(task.mix, task.fold, {m: _pad(v, K) for m, v in held.items()},
+                      _pad(training, K), len(fit.penalties))
+
+
+@dataclass(frozen=True, eq=False)
+class CVResult:
+    """Cross-validation of every mix on one set of folds."""
+
+    fits: dict               # mix -> full-data PathResult
+    curves: pd.DataFrame     # mix, step, penalty, n_terms, metric, cv_mean, cv_se, train_mean
+    picks: pd.DataFrame      # mix, rule, step, penalty, n_terms, cv_mean, cv_se, terms
+    best_mix: float
+    metric: str
+    notes: tuple = field(default=())
+
+
+def fold_tasks(fits: dict, splits, metrics) -> list:
+    return [FoldTask(mix, k, train, test, fit.penalties, tuple(metrics))
+            for mix, fit in fits.items() for k, (train, test) in enumerate(splits)]
+
+
+def summarise(fits: dict, results, metrics, primary) -> tuple[pd.DataFrame, pd.DataFrame, float]:
+    """Curves (mean and SE over folds), picks per mix, and the best mix."""
+    rows, picks = [], []
+    for mix, fit in fits.items():
+        mine = [r for r in results if r.mix == mix]
+        K = len(fit.penalties)
+        n_folds = len(mine)
+        train = np.mean([r.training for r in mine], axis=0)
+        for metric in metrics:
+            scores = np.array([r.held_out[metric] for r in mine])
+            mean = scores.mean(axis=0)
+            se = scores.std(axis=0, ddof=1) / np.sqrt(n_folds) if n_folds > 1 else np.zeros(K)
+            rows.append(pd.DataFrame({
+                "mix": mix, "step": np.arange(K), "penalty": fit.penalties,
+                "n_terms": fit.n_terms, "metric": metric, "cv_mean": mean, "cv_se": se,
+                "train_mean": train if metric == "deviance" else np.nan,
+            }))
+            if metric == primary:
+                for rule, k in pick_steps(mean, se, METRICS[metric].larger_is_better).items():
+                    picks.append({"mix": mix, "rule": rule, "step": k, "penalty": fit.penalties[k],
+                                  "n_terms": int(fit.n_terms[k]), "cv_mean": mean[k], "cv_se": se[k],
+                                  "terms": ";".join(selected_terms(fit, k))})
+    curves = pd.concat(rows, ignore_index=True)
+    picks = pd.DataFrame(picks)
+    best = picks[picks.rule == "min"]
+    better = best.cv_mean.idxmax() if METRICS[primary].larger_is_better else best.cv_mean.idxmin()
+    return curves, picks, float(best.loc[better, "mix"])
+
+
+def pick_steps(mean, se, larger_is_better=False) -> dict:
+    """Steps of the ``min`` and ``one_se`` picks on one curve (grid in decreasing penalty).
+
+    Ties go to the larger penalty (the earlier step).
+    """
+    sign = -1.0 if larger_is_better else 1.0
+    loss = sign * np.asarray(mean, dtype=float)
+    best = int(np.nanargmin(loss))
+    bound = loss[best] + se[best]
+    one_se = int(np.flatnonzero(loss <= bound)[0])
+    return {"min": best, "one_se": min(one_se, best)}
+
+
+def selected_terms(fit, step) -> list:
+    return [name for name, b in zip(fit.names, fit.coef[step]) if b != 0]
+
+
+def cross_validate(problem: Problem, splits, *, mixes=(1.0,), metrics=("deviance",),
+                   primary="deviance", n_penalties=100, penalty_ratio=None,
+                   run=None) -> CVResult:
+    """Cross-validate a path for each mix on the given (train, test) splits.
+
+    ``run(fn, tasks, shared)`` executes the fold tasks (default: in this
+    process); pass a wrapper of :func:`pathfinder.parallel.run_tasks` to
+    spread them over workers.
+    """
+    metrics = tuple(dict.fromkeys((primary,) + tuple(metrics)))
+    fits = {float(mix): problem.fit(mix=float(mix), n_penalties=n_penalties,
+                                    penalty_ratio=penalty_ratio) for mix in mixes}
+    tasks = fold_tasks(fits, splits, metrics)
+    results = (run or _run_here)(run_fold, tasks, problem)
+    curves, picks, best_mix = summarise(fits, results, metrics, primary)
+    notes = tuple(f"a fold's path at mix {r.mix:g} (fold {r.fold + 1}) stopped after "
+                  f"{r.n_fitted} of {len(fits[r.mix].penalties)} penalties; its last model "
+                  "stands in for the rest" for r in results if r.n_fitted < len(fits[r.mix].penalties))
+    return CVResult(fits, curves, picks, best_mix, primary, notes)
+
+
+def _run_here(fn, tasks, shared):
+    return [fn(shared, task) for task in tasks]
