@@ -31,6 +31,7 @@ from ..core.families import get_family, null_intercept
 from .metrics import METRICS, score
 
 RULES = ("min", "one_se")
+FOLD_TOL = 1e-5   # convergence of the repeated fold fits (see cross_validate)
 
 
 @dataclass(frozen=True, eq=False)
@@ -53,7 +54,7 @@ class Problem:
     def fit(self, rows=None, **options):
         return fit_path(self.X, self.y, family=self.family, offset=self.offset,
                         weights=self.weights, standardize=self.standardize,
-                        term_weights=self.term_weights, rows=rows, **options)
+                        term_weights=self.term_weights, rows=rows, names=self.names, **options)
 
     def part(self, values, rows):
         return None if values is None else values[rows]
@@ -74,6 +75,7 @@ class FoldTask:
     test: np.ndarray
     penalties: np.ndarray
     metrics: tuple
+    tol: float = 1e-5
 
 
 @dataclass(frozen=True, eq=False)
@@ -106,7 +108,7 @@ def score_path(problem: Problem, fit, rows, metrics, *, null_rows=None):
         b0 = null_intercept(fam, problem.y[train], w_train,
                             np.zeros(len(train)) if off_train is None else off_train)
         off = problem.part(problem.offset, rows)
-        mu_null = fam.inverse_link(b0 + (0.0 if off is None else off))
+        mu_null = fam.inverse_link(b0 + (np.zeros(len(rows)) if off is None else off))
     for metric in metrics:
         out[metric] = np.array([score(metric, y, mu[:, k], fam.name, w, mu_null)
                                 for k in range(mu.shape[1])])
@@ -121,7 +123,7 @@ def _pad(values, length):
 
 def run_fold(problem: Problem, task: FoldTask) -> FoldScores:
     """Fit one fold's training rows on the shared grid and score its held-out rows."""
-    fit = problem.fit(rows=task.train, mix=task.mix, penalties=task.penalties)
+    fit = problem.fit(rows=task.train, mix=task.mix, penalties=task.penalties, tol=task.tol)
     K = len(task.penalties)
     held = score_path(problem, fit, task.test, task.metrics, null_rows=task.train)
     training = fit.deviance / len(task.train)
@@ -141,8 +143,8 @@ class CVResult:
     notes: tuple = field(default=())
 
 
-def fold_tasks(fits: dict, splits, metrics) -> list:
-    return [FoldTask(mix, k, train, test, fit.penalties, tuple(metrics))
+def fold_tasks(fits: dict, splits, metrics, tol=FOLD_TOL) -> list:
+    return [FoldTask(mix, k, train, test, fit.penalties, tuple(metrics), tol)
             for mix, fit in fits.items() for k, (train, test) in enumerate(splits)]
 
 
@@ -193,18 +195,24 @@ def selected_terms(fit, step) -> list:
 
 
 def cross_validate(problem: Problem, splits, *, mixes=(1.0,), metrics=("deviance",),
-                   primary="deviance", n_penalties=100, penalty_ratio=None,
-                   run=None) -> CVResult:
+                   primary="deviance", n_penalties=100, penalty_ratio=None, rows=None,
+                   fold_tol=None, run=None) -> CVResult:
     """Cross-validate a path for each mix on the given (train, test) splits.
+
+    The grid of each mix comes from its path on ``rows`` (default: all rows;
+    in nested cross-validation, the outer training set), and the splits index
+    into the full table. The fold fits converge to ``fold_tol`` (default
+    1e-5: held-out scores are then exact to far more digits than their
+    standard errors), the full-data paths to the core's default.
 
     ``run(fn, tasks, shared)`` executes the fold tasks (default: in this
     process); pass a wrapper of :func:`pathfinder.parallel.run_tasks` to
     spread them over workers.
     """
     metrics = tuple(dict.fromkeys((primary,) + tuple(metrics)))
-    fits = {float(mix): problem.fit(mix=float(mix), n_penalties=n_penalties,
+    fits = {float(mix): problem.fit(rows=rows, mix=float(mix), n_penalties=n_penalties,
                                     penalty_ratio=penalty_ratio) for mix in mixes}
-    tasks = fold_tasks(fits, splits, metrics)
+    tasks = fold_tasks(fits, splits, metrics, FOLD_TOL if fold_tol is None else fold_tol)
     results = (run or _run_here)(run_fold, tasks, problem)
     curves, picks, best_mix = summarise(fits, results, metrics, primary)
     notes = tuple(f"a fold's path at mix {r.mix:g} (fold {r.fold + 1}) stopped after "

@@ -163,7 +163,8 @@ def _check_vector(v, n, what):
 
 def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=100,
              penalty_ratio=None, term_weights=None, offset=None, weights=None,
-             standardize=True, tol=1e-7, max_sweeps=100_000, rows=None) -> PathResult:
+             standardize=True, tol=1e-7, max_sweeps=100_000, rows=None,
+             names=None) -> PathResult:
     """Fit a lasso / elastic-net / ridge path of a Gaussian, binomial or Poisson GLM.
 
     Parameters
@@ -179,6 +180,8 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     offset : added to the linear predictor (log survey effort for counts).
     weights : observation weights ``>= 0``, rescaled to sum to n.
     standardize : fit on standardised predictors (default) or on X as given.
+    names : names of the columns of X (default: a DataFrame's column names,
+        else x0, x1, ...).
     rows : fit on these rows of X only (y, offset and weights are given for
         all rows of X too). X is then read row block by row block and never
         copied whole: this is how folds and subsamples are fitted.
@@ -192,7 +195,8 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
         raise ValueError(f"mix must lie between 0 (ridge) and 1 (lasso), got {mix}")
     mix = float(mix)
     fam = get_family(family)
-    names = tuple(str(c) for c in X.columns) if isinstance(X, pd.DataFrame) else None
+    if names is None and isinstance(X, pd.DataFrame):
+        names = tuple(str(c) for c in X.columns)
     if isinstance(X, pd.DataFrame):
         X = X.to_numpy(dtype=float)
     X = np.asarray(X)
@@ -201,8 +205,9 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     if not np.issubdtype(X.dtype, np.number):
         X = X.astype(float)
     n_all, p = X.shape
-    if names is None:
-        names = tuple(f"x{j}" for j in range(p))
+    names = tuple(f"x{j}" for j in range(p)) if names is None else tuple(str(c) for c in names)
+    if len(names) != p:
+        raise ValueError(f"{len(names)} names for {p} columns of X")
     y = _check_vector(y, n_all, "y")
     offset = np.zeros(n_all) if offset is None else _check_vector(offset, n_all, "offset")
     w = np.ones(n_all) if weights is None else _check_vector(weights, n_all, "weights")

@@ -43,7 +43,10 @@ def run_record(study, command: str) -> dict:
         "paths": [{"method": method, "mix": mix, "penalties": len(fit.penalties),
                    "stop_reason": fit.stop_reason}
                   for (method, mix), fit in study.fits.items()],
-        "notes": list(survey.notes),
+        "folds": {"scheme": study.folds.scheme, "count": study.folds.n_folds,
+                  "repeats": study.folds.n_repeats},
+        "backend": study.backend,
+        "notes": list(study.notes),
         "warnings": list(study.warnings),
         "timings_seconds": {k: round(v, 3) for k, v in study.timings.items()},
     }

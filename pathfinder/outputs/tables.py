@@ -7,6 +7,7 @@ it without knowing how it was computed.
 
 from __future__ import annotations
 
+import numpy as np
 import pandas as pd
 
 
@@ -30,3 +31,53 @@ def path_table(fits: dict) -> pd.DataFrame:
         summary.insert(0, "method", method)
         parts.append(summary)
     return pd.concat(parts, ignore_index=True)
+
+
+def cv_table(curves: pd.DataFrame, relaxed, method_name) -> pd.DataFrame:
+    """method, mix, step, penalty, n_terms, metric, cv_mean, cv_se, train_mean, relax.
+
+    The relaxed lasso's curves (one per relaxation) follow the penalised ones.
+    """
+    out = curves.copy()
+    out.insert(0, "method", [method_name(m) for m in out["mix"]])
+    out["relax"] = np.nan
+    if relaxed is not None:
+        extra = relaxed.curves.copy()
+        extra.insert(0, "mix", 1.0)
+        extra.insert(0, "method", "relaxed lasso")
+        extra["train_mean"] = np.nan
+        out = pd.concat([out, extra[out.columns]], ignore_index=True)
+    return out
+
+
+def picks_table(picks: pd.DataFrame, relaxed, method_name) -> pd.DataFrame:
+    """method, mix, rule, step, penalty, n_terms, cv_mean, cv_se, terms (and relax)."""
+    out = picks.copy()
+    out.insert(0, "method", [method_name(m) for m in out["mix"]])
+    out["relax"] = np.nan
+    if relaxed is not None:
+        extra = relaxed.picks.copy()
+        extra.insert(0, "mix", 1.0)
+        extra.insert(0, "method", "relaxed lasso")
+        out = pd.concat([out, extra[out.columns]], ignore_index=True)
+    return out
+
+
+def folds_table(folds, rows) -> pd.DataFrame:
+    """row (data row number in the input table, first data row = 1), fold (1..K), repeat if repeated."""
+    frame = folds.to_frame()
+    frame["row"] = np.asarray(rows)[frame["row"].to_numpy()] + 1
+    frame["fold"] = frame["fold"] + 1
+    return frame
+
+
+def correlations_table(design) -> pd.DataFrame:
+    """Pearson correlation of every pair of terms: term_a, term_b, r (each pair once)."""
+    X = design.X
+    sd = X.std(axis=0)
+    keep = sd > 0
+    names = [n for n, k in zip(design.names, keep) if k]
+    r = np.corrcoef(X[:, keep], rowvar=False) if keep.sum() > 1 else np.ones((1, 1))
+    a, b = np.triu_indices(len(names), k=1)
+    return pd.DataFrame({"term_a": np.asarray(names, dtype=object)[a],
+                         "term_b": np.asarray(names, dtype=object)[b], "r": r[a, b]})

@@ -2,8 +2,37 @@
 
 from __future__ import annotations
 
+import sys
+
 from rich.console import Console
+from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 from rich.table import Table
+
+
+class ProgressReporter:
+    """Progress bars on standard error, one per stage, for the study's progress protocol.
+
+    ``reporter(stage, total)`` starts a stage and returns a function to call
+    once per finished task; ``reporter(stage, None)`` ends it.
+    """
+
+    def __init__(self, console: Console | None = None):
+        self.console = console or Console(file=sys.stderr)
+        self.progress = None
+        self.task = None
+
+    def __call__(self, stage, total):
+        if total is None:
+            if self.progress is not None:
+                self.progress.stop()
+                self.progress = None
+            return None
+        self.progress = Progress(TextColumn("{task.description:<28}"), BarColumn(), MofNCompleteColumn(),
+                                 TimeRemainingColumn(), console=self.console, transient=True)
+        self.progress.start()
+        self.task = self.progress.add_task(stage, total=total)
+        progress, task = self.progress, self.task
+        return lambda *_: progress.advance(task)
 
 
 def summary_dict(study, out) -> dict:

@@ -1,0 +1,191 @@
+"""Honest error: nested cross-validation around the whole choosing procedure.
+
+Cross-validation that chooses the penalty also grades the choice on the same
+folds, so its best score is optimistic. Nested cross-validation wraps the
+entire procedure (choosing the mix, the penalty and, for the relaxed lasso,
+the relaxation) inside each outer training set, with inner folds made there by
+the same scheme, and grades the chosen model on the outer fold it never saw.
+The gap between the inner best score and the outer score is the optimism.
+
+The same outer folds judge every method and pick rule, so their outer scores
+are comparable; :func:`comparison_table` summarises them.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from itertools import combinations
+
+import numpy as np
+import pandas as pd
+
+from ..core.families import get_family
+from .cv import Problem, cross_validate
+from .folds import make_folds
+from .metrics import score
+from .relaxed import relaxed_lasso
+
+
+@dataclass(frozen=True, eq=False)
+class FoldPlan:
+    """How folds are made, so that inner folds follow the run's own scheme."""
+
+    k: int = 10
+    family: str | None = None
+    groups: np.ndarray | None = None
+    coords: np.ndarray | None = None
+    block_size: float | None = None
+    fold_labels: np.ndarray | None = None
+
+    def make(self, y, rows, seed, k=None):
+        """Folds of the sites ``rows`` (positions in the full table)."""
+        def sub(values):
+            return None if values is None else values[rows]
+        return make_folds(len(rows), k=k or self.k, y=y[rows], family=self.family,
+                          groups=sub(self.groups), coords=sub(self.coords),
+                          block_size=self.block_size, fold_labels=sub(self.fold_labels), seed=seed)
+
+
+@dataclass(frozen=True, eq=False)
+class Choice:
+    """One chosen model: which method and rule, and its coefficients."""
+
+    method: str
+    rule: str
+    mix: float
+    penalty: float
+    intercept: float
+    coef: np.ndarray
+    inner_score: float
+    names: tuple
+
+    @property
+    def terms(self) -> tuple:
+        return tuple(n for n, b in zip(self.names, self.coef) if b != 0)
+
+
+def choices(cv, relaxed=None) -> list[Choice]:
+    """The models each method and pick rule chose from a cross-validation.
+
+    lasso (mix 1), ridge (mix 0) and the elastic net at its best mix strictly
+    between 0 and 1, each with the ``min`` and ``one_se`` rules; and the relaxed
+    lasso when it was cross-validated.
+    """
+    picks = cv.picks
+    out = []
+    mixes = sorted(cv.fits)
+    plan = [("lasso", 1.0), ("ridge", 0.0)]
+    middle = picks[(picks.mix > 0) & (picks.mix < 1) & (picks.rule == "min")]
+    if len(middle):
+        plan.append(("elastic net", float(middle.loc[middle.cv_mean.idxmin(), "mix"])))
+    for method, mix in plan:
+        if mix not in mixes:
+            continue
+        fit = cv.fits[mix]
+        for _, pick in picks[picks.mix == mix].iterrows():
+            k = int(pick.step)
+            out.append(Choice(method, pick.rule, mix, float(fit.penalties[k]), float(fit.intercept[k]),
+                              fit.coef[k].copy(), float(pick.cv_mean), fit.names))
+    if relaxed is not None:
+        lasso = cv.fits[1.0]
+        for _, pick in relaxed.picks.iterrows():
+            b0, b = relaxed.models[pick.rule]
+            out.append(Choice("relaxed lasso", pick.rule, 1.0, float(pick.penalty), float(b0), b,
+                              float(pick.cv_mean), lasso.names))
+    return out
+
+
+@dataclass(frozen=True)
+class OuterTask:
+    fold: int
+    train: np.ndarray
+    test: np.ndarray
+    seed: int
+    plan: FoldPlan
+    inner_k: int
+    mixes: tuple
+    metric: str
+    n_penalties: int
+    penalty_ratio: float | None
+    relax: bool
+
+
+def run_outer_fold(problem: Problem, task: OuterTask) -> list[dict]:
+    """The whole choosing procedure on one outer training set, graded on its test set."""
+    inner = task.plan.make(problem.y, task.train, task.seed, k=task.inner_k)
+    splits = [(task.train[a], task.train[b]) for a, b in _all_splits(inner)]
+    cv = cross_validate(problem, splits, mixes=task.mixes, primary=task.metric,
+                        n_penalties=task.n_penalties, penalty_ratio=task.penalty_ratio,
+                        rows=task.train)
+    relaxed = None
+    if task.relax and 1.0 in cv.fits:
+        relaxed = relaxed_lasso(problem, cv.fits[1.0], splits, metric=task.metric, rows=task.train)
+    fam = get_family(problem.family)
+    y, w = problem.y[task.test], problem.part(problem.weights, task.test)
+    rows = []
+    for choice in choices(cv, relaxed):
+        eta = problem.linear_predictor(np.array([choice.intercept]), choice.coef[None, :], task.test)
+        outer = score(task.metric, y, fam.inverse_link(eta[:, 0]), fam.name, w)
+        rows.append({"fold": task.fold, "method": choice.method, "rule": choice.rule,
+                     "mix": choice.mix, "penalty": choice.penalty, "n_terms": len(choice.terms),
+                     "terms": ";".join(choice.terms), "inner_score": choice.inner_score,
+                     "outer_score": outer})
+    return rows
+
+
+def _all_splits(folds):
+    out = []
+    for r in range(folds.n_repeats):
+        out.extend(folds.splits(r))
+    return out
+
+
+def nested_cv(problem: Problem, outer_splits, plan: FoldPlan, *, seed, inner_k=5, mixes=(1.0,),
+              metric="deviance", n_penalties=100, penalty_ratio=None, relax=True,
+              run=None) -> pd.DataFrame:
+    """Outer-fold scores of every method and rule: one row per (outer fold, method, rule).
+
+    Each outer fold gets its own seed for its inner folds (spawned from
+    ``seed``), so the result does not depend on where the folds ran.
+    """
+    seeds = [int(s.generate_state(1)[0]) for s in np.random.SeedSequence(seed).spawn(len(outer_splits))]
+    tasks = [OuterTask(k, train, test, seeds[k], plan, inner_k, tuple(float(m) for m in mixes), metric,
+                       n_penalties, penalty_ratio, relax)
+             for k, (train, test) in enumerate(outer_splits)]
+    results = (run or (lambda fn, ts, shared: [fn(shared, t) for t in ts]))(run_outer_fold, tasks, problem)
+    return pd.DataFrame([row for rows in results for row in rows])
+
+
+def mean_jaccard(term_sets) -> float:
+    """Mean pairwise Jaccard index of the term sets chosen in the outer folds (1 = always the same)."""
+    sets = [set(t.split(";")) - {""} for t in term_sets]
+    pairs = list(combinations(sets, 2))
+    if not pairs:
+        return float("nan")
+    return float(np.mean([len(a & b) / len(a | b) if a | b else 1.0 for a, b in pairs]))
+
+
+def comparison_table(full_choices, outer: pd.DataFrame, metric: str) -> pd.DataFrame:
+    """One row per method and rule: the full-data choice beside its honest outer score.
+
+    ``optimism`` is the outer mean minus the mean inner (cross-validated) score
+    of the choice; for a loss such as deviance a positive value means the
+    inner cross-validation flattered the method.
+    """
+    rows = []
+    for choice in full_choices:
+        mine = outer[(outer.method == choice.method) & (outer.rule == choice.rule)]
+        k = len(mine)
+        rows.append({
+            "method": choice.method, "rule": choice.rule, "mix": choice.mix,
+            "penalty": choice.penalty, "n_terms": len(choice.terms), "terms": ";".join(choice.terms),
+            "metric": metric,
+            "outer_mean": mine.outer_score.mean() if k else np.nan,
+            "outer_se": mine.outer_score.std(ddof=1) / np.sqrt(k) if k > 1 else np.nan,
+            "inner_mean": mine.inner_score.mean() if k else np.nan,
+            "optimism": (mine.outer_score - mine.inner_score).mean() if k else np.nan,
+            "outer_n_terms": mine.n_terms.mean() if k else np.nan,
+            "jaccard": mean_jaccard(mine.terms) if k else np.nan,
+            "cv_score": choice.inner_score,
+        })
+    return pd.DataFrame(rows)
