@@ -17,6 +17,7 @@ from .errors import InputError
 
 DEMO_FOLDER = "pathfinder-demo"
 DEMO_CHOICES = {"presence": "binomial", "count": "poisson", "continuous": "gaussian"}
+DEMO_BLOCK_KM = 40.0  # spatial blocks for the demo survey, about its autocorrelation range
 
 
 class _Parser(argparse.ArgumentParser):
@@ -73,13 +74,34 @@ def _add_model_options(p):
                         "predictors, or those listed")
     p.add_argument("--interactions", action="store_true",
                    help="add every pairwise interaction of numeric predictors (centred)")
-    p.add_argument("--mix", type=_numbers, default=(1.0,), metavar="M1,M2,..",
-                   help="lasso-to-ridge mix values: 1 lasso, 0 ridge, between: elastic net (default 1)")
+    p.add_argument("--mix", type=_numbers, default=None, metavar="M1,M2,..",
+                   help="lasso-to-ridge mix values: 1 lasso, 0 ridge, between: elastic net "
+                        "(default 1,0.75,0.5,0.25,0)")
     p.add_argument("--penalties", type=int, default=100, metavar="N", help="penalties on the path (default 100)")
     p.add_argument("--penalty-ratio", type=float, metavar="R",
                    help="smallest penalty as a fraction of the largest (default 1e-4, or 1e-2 when "
                         "there are more terms than rows)")
     p.add_argument("--seed", type=int, default=1, help="seed for every random choice (default 1)")
+
+
+def _add_choosing_options(p):
+    p.add_argument("--folds", type=int, default=10, metavar="K", help="cross-validation folds (default 10)")
+    p.add_argument("--block-size", type=float, metavar="S",
+                   help="spatial blocks: square blocks of this size in coordinate units, whole "
+                        "blocks to a fold (needs --coords)")
+    p.add_argument("--fold-column", metavar="COL", help="a column that gives each site's fold")
+    p.add_argument("--repeats", type=int, default=1, metavar="R", help="repeat cross-validation R times")
+    p.add_argument("--metric", default="deviance",
+                   choices=["deviance", "mse", "mae", "auc", "brier", "log_loss", "deviance_explained"],
+                   help="held-out measure that picks the penalty (default deviance)")
+    p.add_argument("--no-relax", action="store_true", help="skip the relaxed lasso")
+    p.add_argument("--no-nested", action="store_true",
+                   help="skip nested cross-validation (faster, but no honest error for the comparison)")
+    p.add_argument("--inner-folds", type=int, default=5, metavar="K",
+                   help="folds inside each outer training set in nested cross-validation (default 5)")
+    p.add_argument("--jobs", type=int, default=1, metavar="N", help="local worker processes (default 1)")
+    p.add_argument("--cluster", metavar="ADDRESS",
+                   help="send repeated fits to a running Dask scheduler, e.g. tcp://host:8786")
 
 
 def _add_output_options(p, default_out=None):
@@ -107,6 +129,7 @@ def build_parser() -> argparse.ArgumentParser:
                "--exclude site_id --mix 1,0.5 --out results")
     _add_table_options(explore)
     _add_model_options(explore)
+    _add_choosing_options(explore)
     _add_output_options(explore)
     explore.set_defaults(run=run_explore)
 
@@ -118,60 +141,97 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("--response", choices=list(DEMO_CHOICES), default="presence",
                       help="which of the three responses to model (default presence)")
     demo.add_argument("--seed", type=int, default=1)
+    demo.add_argument("--jobs", type=int, default=1, metavar="N", help="local worker processes")
+    demo.add_argument("--quick", action="store_true", help="skip nested cross-validation (faster)")
     _add_output_options(demo, default_out=DEMO_FOLDER)
     demo.set_defaults(run=run_demo)
     return parser
 
 
 def _options_from(args):
-    from .study import StudyOptions
+    from .study import DEFAULT_MIXES, StudyOptions
     return StudyOptions(
         response=args.response, family=args.family, predictors=args.predictors,
         exclude=tuple(args.exclude), categorical=tuple(args.categorical), effort=args.effort,
         offset=args.offset, weights=args.weights, coords=args.coords, groups=args.groups,
-        missing=args.missing, decimal=args.decimal, delimiter=args.delimiter,
-        squares=args.squares, interactions=args.interactions, mixes=tuple(args.mix),
-        n_penalties=args.penalties, penalty_ratio=args.penalty_ratio, seed=args.seed)
+        fold_column=args.fold_column, missing=args.missing, decimal=args.decimal,
+        delimiter=args.delimiter, squares=args.squares, interactions=args.interactions,
+        mixes=tuple(args.mix) if args.mix else DEFAULT_MIXES, n_penalties=args.penalties,
+        penalty_ratio=args.penalty_ratio, folds=args.folds, block_size=args.block_size,
+        repeats=args.repeats, metric=args.metric, relax=not args.no_relax,
+        nested=not args.no_nested, inner_folds=args.inner_folds, seed=args.seed)
+
+
+def _backend(args):
+    from .parallel import Backend
+    if args.jobs < 1:
+        raise InputError("--jobs must be 1 or more")
+    return Backend(jobs=args.jobs, cluster=getattr(args, "cluster", None))
 
 
 def run_explore(args) -> int:
     from .outputs.folder import check_target
     from .study import explore
-    check_target(args.out)
-    data = Path(args.data)
-    study = explore(data, _options_from(args))
-    return _finish(study, args, command="explore")
+    check_target(args.out, overwrite=args.overwrite, inputs=[args.data])
+    options = _options_from(args)
+    study = explore(Path(args.data), options, backend=_backend(args), progress=_progress(args))
+    return _finish(study, args, command="explore", inputs=[args.data])
 
 
 def run_demo(args) -> int:
-    from .examples import COORDS, DEMO_RESPONSES, EFFORT, GROUPS, SITE_LABELS, load_demo
+    from importlib.resources import as_file, files
+
+    from . import examples
+    from .outputs.folder import check_target
     from .study import StudyOptions, explore
     family = DEMO_CHOICES[args.response]
-    response = DEMO_RESPONSES[family]
-    others = tuple(c for f, c in DEMO_RESPONSES.items() if f != family)
+    response = examples.DEMO_RESPONSES[family]
+    others = tuple(c for f, c in examples.DEMO_RESPONSES.items() if f != family)
+    effort = examples.EFFORT
     # Effort is an offset for the count; for the other responses it is not a predictor either.
     options = StudyOptions(
         response=response, family=family,
-        exclude=others + tuple(SITE_LABELS) + (() if family == "poisson" else (EFFORT,)),
-        effort=EFFORT if family == "poisson" else None, coords=tuple(COORDS), groups=GROUPS,
-        seed=args.seed)
+        exclude=others + tuple(examples.SITE_LABELS) + (examples.GROUPS,)
+        + (() if family == "poisson" else (effort,)),
+        effort=effort if family == "poisson" else None, coords=tuple(examples.COORDS),
+        block_size=DEMO_BLOCK_KM, squares=("july_temp_c",), nested=not args.quick, seed=args.seed)
     args.overwrite = args.overwrite or _is_earlier_demo(Path(args.out))
-    study = explore(load_demo(), options)
+    check_target(args.out, overwrite=args.overwrite)
+    with as_file(files(examples) / examples.DEMO_CSV) as table:
+        study = explore(table, options, backend=_backend(args), progress=_progress(args))
     return _finish(study, args, command="demo")
 
 
+def _progress(args):
+    if args.quiet or args.json:
+        return None
+    from .report.terminal import ProgressReporter
+    return ProgressReporter()
+
+
+DEMO_FILES = {"run.json", "report.html", "model.json"}
+
+
 def _is_earlier_demo(folder: Path) -> bool:
-    """A folder written by an earlier demo run may be replaced without --overwrite."""
+    """May the demo replace this folder without --overwrite?
+
+    Only if an earlier demo wrote it (its run.json says so) and it holds
+    nothing but what a demo writes: files a user added there are never lost.
+    """
     try:
-        return json.loads((folder / "run.json").read_text(encoding="utf-8")).get("command") == "demo"
-    except (OSError, ValueError):
+        if json.loads((folder / "run.json").read_text(encoding="utf-8")).get("command") != "demo":
+            return False
+        return all(entry.is_file() and (entry.suffix == ".csv" or entry.name in DEMO_FILES)
+                   or entry.is_dir() and entry.name == "figures"
+                   for entry in folder.iterdir())
+    except (OSError, ValueError, AttributeError):
         return False
 
 
-def _finish(study, args, *, command) -> int:
+def _finish(study, args, *, command, inputs=()) -> int:
     from .outputs.write import write_study
     from .report.terminal import print_summary
-    out = write_study(study, args.out, overwrite=args.overwrite, command=command)
+    out = write_study(study, args.out, overwrite=args.overwrite, command=command, inputs=inputs)
     if args.json:
         from .report.terminal import summary_dict
         print(json.dumps(summary_dict(study, out)))
@@ -186,8 +246,7 @@ def main(argv=None) -> int:
     try:
         args = build_parser().parse_args(argv)
         if args.command is None:
-            build_parser().print_help()
-            return 2
+            raise InputError("choose a command: explore, demo (see 'pathfinder --help')")
         return args.run(args)
     except InputError as error:
         print(f"pathfinder: {error.message}", file=sys.stderr)

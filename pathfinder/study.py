@@ -1,10 +1,13 @@
 """The explore pipeline: one readable function, stage by stage.
 
-    table -> intake -> design -> paths (one per mix) -> tables + run record
+    table -> intake -> design -> folds -> cross-validated paths (each mix)
+          -> relaxed lasso -> information criteria -> nested cross-validation
+          -> tables (+ the run record, written by outputs/)
 
 Each stage is a plain call into its own module; this file only wires them
-together and times them. Nothing here writes files or prints: the command
-line (or a notebook) decides what to do with the returned :class:`Study`.
+together, times them and reports progress. Nothing here writes files or
+prints: the command line (or a notebook) decides what to do with the
+returned :class:`Study`.
 """
 
 from __future__ import annotations
@@ -14,13 +17,22 @@ import warnings
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
-from .core import PathResult, fit_path
+from .choose.criteria import information_criteria
+from .choose.cv import Problem, cross_validate
+from .choose.folds import make_folds
+from .choose.metrics import METRICS
+from .choose.nested import FoldPlan, choices, comparison_table, nested_cv
+from .choose.relaxed import relaxed_lasso
 from .data.design import Design, build_design
 from .data.intake import Survey, TableInfo, prepare_survey, read_table
 from .errors import FitWarning, InputError
 from .outputs import tables
+from .parallel import Backend, describe, run_tasks
+
+DEFAULT_MIXES = (1.0, 0.75, 0.5, 0.25, 0.0)
 
 
 def method_name(mix: float) -> str:
@@ -34,7 +46,7 @@ def method_name(mix: float) -> str:
 
 @dataclass(frozen=True)
 class StudyOptions:
-    """Everything that shapes a run, in one place (written to the run record)."""
+    """Everything that shapes the results of a run (written to the run record)."""
 
     response: str
     family: str = "auto"
@@ -46,25 +58,44 @@ class StudyOptions:
     weights: str | None = None
     coords: tuple | None = None
     groups: str | None = None
+    fold_column: str | None = None
     missing: str = "drop"
     decimal: str | None = None
     delimiter: str | None = None
     squares: bool | tuple = False
     interactions: bool | tuple = False
-    mixes: tuple = (1.0,)
+    mixes: tuple = DEFAULT_MIXES
     n_penalties: int = 100
     penalty_ratio: float | None = None
     standardize: bool = True
+    folds: int = 10
+    block_size: float | None = None
+    repeats: int = 1
+    metric: str = "deviance"
+    relax: bool = True
+    nested: bool = True
+    inner_folds: int = 5
     seed: int = 1
 
     def __post_init__(self):
-        for mix in self.mixes:
-            if not 0.0 <= float(mix) <= 1.0:
-                raise InputError(f"mix {mix} is outside 0 (ridge) to 1 (lasso): give values such as 1,0.5")
+        mixes = tuple(float(m) for m in self.mixes)
+        if not mixes or any(not 0.0 <= m <= 1.0 for m in mixes):
+            raise InputError(f"mix values must lie between 0 (ridge) and 1 (lasso); got {self.mixes}")
+        object.__setattr__(self, "mixes", tuple(dict.fromkeys(mixes)))
         if int(self.n_penalties) < 2:
             raise InputError("the number of penalties must be at least 2")
         if self.penalty_ratio is not None and not 0 < float(self.penalty_ratio) < 1:
             raise InputError("the penalty ratio must lie strictly between 0 and 1, e.g. 0.001")
+        if int(self.folds) < 2 or int(self.inner_folds) < 2:
+            raise InputError("cross-validation needs at least 2 folds (outer and inner)")
+        if int(self.repeats) < 1:
+            raise InputError("repeats must be 1 or more")
+        if self.block_size is not None and float(self.block_size) <= 0:
+            raise InputError("the block size must be a positive distance in coordinate units")
+        if self.block_size is not None and not self.coords:
+            raise InputError("a block size needs the site coordinates: add --coords XCOL,YCOL")
+        if self.metric not in METRICS:
+            raise InputError(f"unknown metric {self.metric!r}: use one of {', '.join(METRICS)}")
 
     def to_dict(self) -> dict:
         return {k: (list(v) if isinstance(v, tuple) else v) for k, v in asdict(self).items()}
@@ -78,10 +109,20 @@ class Study:
     survey: Survey
     design: Design
     table_info: TableInfo | None
-    fits: dict                    # (method, mix) -> PathResult
+    folds: object
+    cv: object
+    relaxed: object
+    choices: list
     tables: dict                  # name -> DataFrame (written as name.csv)
     timings: dict
+    backend: str
     warnings: tuple = field(default=())
+    notes: tuple = field(default=())
+
+    @property
+    def fits(self) -> dict:
+        """(method, mix) -> full-data path."""
+        return {(method_name(mix), mix): fit for mix, fit in self.cv.fits.items()}
 
 
 def load_table(data, options: StudyOptions):
@@ -91,48 +132,123 @@ def load_table(data, options: StudyOptions):
     return read_table(Path(data), decimal=options.decimal, delimiter=options.delimiter)
 
 
-def explore(data, options: StudyOptions) -> Study:
-    """Run the analysis on a table (a file path or a DataFrame)."""
-    timings = {}
-    clock = time.perf_counter()
+class _Stages:
+    """Times each stage and tells an optional progress reporter about it."""
 
-    frame, info = load_table(data, options)
-    survey = prepare_survey(
-        frame, response=options.response, family=options.family,
-        predictors=list(options.predictors) if options.predictors is not None else None,
-        exclude=list(options.exclude), categorical=list(options.categorical),
-        effort=options.effort, offset=options.offset, weights=options.weights,
-        coords=list(options.coords) if options.coords else None, groups=options.groups,
-        missing=options.missing,
-    )
-    design = build_design(survey.frame, survey.predictors, survey.categorical,
-                          squares=options.squares, interactions=options.interactions,
-                          weights=survey.weights)
-    timings["intake and design"] = time.perf_counter() - clock
+    def __init__(self, progress):
+        self.progress = progress
+        self.timings = {}
 
-    clock = time.perf_counter()
-    X = pd.DataFrame(design.X, columns=design.names)
-    fits = {}
+    def run(self, name, fn, total=None):
+        clock = time.perf_counter()
+        tick = self.progress(name, total) if self.progress else None
+        try:
+            return fn(tick)
+        finally:
+            self.timings[name] = time.perf_counter() - clock
+            if self.progress:
+                self.progress(name, None)
+
+
+def metrics_for(family: str, primary: str) -> tuple:
+    """The primary metric first, then every other metric that fits the family."""
+    if family not in METRICS[primary].families:
+        raise InputError(f"the metric {primary!r} does not apply to a {family} response; "
+                         f"use one of {', '.join(k for k, m in METRICS.items() if family in m.families)}")
+    return (primary,) + tuple(k for k, m in METRICS.items() if family in m.families and k != primary)
+
+
+def explore(data, options: StudyOptions, *, backend: Backend | None = None, progress=None) -> Study:
+    """Run the analysis on a table (a file path or a DataFrame).
+
+    ``progress(stage, total)`` (optional) is called when a stage starts and
+    returns a function to call once per finished task; it is called again
+    with ``total=None`` when the stage ends.
+    """
+    backend = backend or Backend()
+    stages = _Stages(progress)
+
+    def prepare(_):
+        frame, info = load_table(data, options)
+        fold_column = [options.fold_column] if options.fold_column else []
+        survey = prepare_survey(
+            frame, response=options.response, family=options.family,
+            predictors=list(options.predictors) if options.predictors is not None else None,
+            exclude=list(options.exclude) + fold_column, categorical=list(options.categorical),
+            effort=options.effort, offset=options.offset, weights=options.weights,
+            coords=list(options.coords) if options.coords else None, groups=options.groups,
+            missing=options.missing)
+        labels = frame[options.fold_column].to_numpy()[survey.rows] if fold_column else None
+        design = build_design(survey.frame, survey.predictors, survey.categorical,
+                              squares=options.squares, interactions=options.interactions,
+                              weights=survey.weights)
+        return frame, info, survey, design, labels
+
+    frame, info, survey, design, fold_labels = stages.run("reading the table", prepare)
+    metrics = metrics_for(survey.family, options.metric)
+    problem = Problem(np.asfortranarray(design.X), survey.response, survey.family, tuple(design.names),
+                      offset=survey.offset, weights=survey.weights, standardize=options.standardize)
+    plan = FoldPlan(k=int(options.folds), family=survey.family, groups=survey.groups,
+                    coords=survey.coords if options.block_size else None,
+                    block_size=options.block_size, fold_labels=fold_labels)
+    folds = make_folds(survey.n, k=int(options.folds), y=survey.response, family=survey.family,
+                       groups=survey.groups, coords=survey.coords, block_size=options.block_size,
+                       fold_labels=fold_labels, repeats=int(options.repeats), seed=options.seed)
+    splits = [s for r in range(folds.n_repeats) for s in folds.splits(r)]
+
+    def runner(tick):
+        return lambda fn, tasks, shared: run_tasks(fn, tasks, shared, backend, on_done=tick)
+
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", FitWarning)
-        for mix in options.mixes:
-            fits[(method_name(float(mix)), float(mix))] = fit_path(
-                X, survey.response, family=survey.family, mix=float(mix),
-                n_penalties=int(options.n_penalties), penalty_ratio=options.penalty_ratio,
-                offset=survey.offset, weights=survey.weights, standardize=options.standardize)
-    fit_warnings = tuple(str(w.message) for w in caught if issubclass(w.category, FitWarning))
-    timings["paths"] = time.perf_counter() - clock
+        cv = stages.run("cross-validating the paths", lambda tick: cross_validate(
+            problem, splits, mixes=options.mixes, metrics=metrics, primary=options.metric,
+            n_penalties=int(options.n_penalties), penalty_ratio=options.penalty_ratio,
+            run=runner(tick)), total=len(splits) * len(options.mixes))
+        relaxed = None
+        if options.relax and 1.0 in cv.fits:
+            relaxed = stages.run("relaxing the lasso", lambda tick: relaxed_lasso(
+                problem, cv.fits[1.0], splits, metric=options.metric, run=runner(tick)),
+                total=len(splits))
+        criteria = stages.run("information criteria", lambda _: _criteria_table(cv.fits, problem))
+        full_choices = choices(cv, relaxed)
+        outer = None
+        if options.nested:
+            outer = stages.run("nested cross-validation", lambda tick: nested_cv(
+                problem, folds.splits(0), plan, seed=options.seed, inner_k=int(options.inner_folds),
+                mixes=options.mixes, metric=options.metric, n_penalties=int(options.n_penalties),
+                penalty_ratio=options.penalty_ratio, relax=options.relax, run=runner(tick)),
+                total=folds.n_folds)
+    fit_warnings = tuple(dict.fromkeys(str(w.message) for w in caught
+                                       if issubclass(w.category, FitWarning)))
 
+    fits = {(method_name(mix), mix): fit for mix, fit in cv.fits.items()}
+    result_tables = {
+        "coefficients": tables.coefficients_table(fits),
+        "path": tables.path_table(fits),
+        "cv": tables.cv_table(cv.curves, relaxed, method_name),
+        "picks": tables.picks_table(cv.picks, relaxed, method_name),
+        "criteria": criteria,
+        "folds": tables.folds_table(folds, survey.rows),
+        "correlations": tables.correlations_table(design),
+    }
+    if outer is not None:
+        result_tables["comparison"] = comparison_table(full_choices, outer, options.metric)
+        result_tables["outer_folds"] = outer
+    notes = tuple(survey.notes) + tuple(folds.notes) + tuple(cv.notes)
     return Study(
-        options=options, survey=survey, design=design, table_info=info, fits=fits,
-        tables={"coefficients": tables.coefficients_table(fits), "path": tables.path_table(fits)},
-        timings=timings, warnings=tuple(survey.warnings) + fit_warnings,
+        options=options, survey=survey, design=design, table_info=info, folds=folds, cv=cv,
+        relaxed=relaxed, choices=full_choices, tables=result_tables, timings=stages.timings,
+        backend=describe(backend), warnings=tuple(survey.warnings) + fit_warnings, notes=notes,
     )
 
 
-def path_of(study: Study, method: str = "lasso") -> PathResult:
-    """The first fitted path of a method."""
-    for (name, _), fit in study.fits.items():
-        if name == method:
-            return fit
-    raise KeyError(method)
+def _criteria_table(fits: dict, problem: Problem) -> pd.DataFrame:
+    parts = []
+    for mix, fit in fits.items():
+        frame = information_criteria(fit, problem.X, problem.y, weights=problem.weights,
+                                     offset=problem.offset)
+        frame.insert(0, "mix", mix)
+        frame.insert(0, "method", method_name(mix))
+        parts.append(frame)
+    return pd.concat(parts, ignore_index=True)
