@@ -84,6 +84,8 @@ from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from typing import Any, Callable
 
+from threadpoolctl import threadpool_limits
+
 from .errors import InputError
 
 # Seconds to wait for a Dask scheduler before giving up.
@@ -176,11 +178,24 @@ def run_tasks(fn: Callable, tasks: list, shared, backend: Backend, *,
 
 def _run_here(fn, tasks, shared, on_done) -> list:
     results = []
-    for i, task in enumerate(tasks):
-        results.append(fn(shared, task))
-        if on_done is not None:
-            on_done(i)
+    with threadpool_limits(limits=1):  # as in the workers: see one_thread
+        for i, task in enumerate(tasks):
+            results.append(fn(shared, task))
+            if on_done is not None:
+                on_done(i)
     return results
+
+
+def one_thread(fn, shared, task):
+    """Run one task with a single linear-algebra thread.
+
+    Every backend runs tasks this way. Matrix products summed by two threads
+    round differently from one thread, so this is what makes results equal to
+    the last bit wherever a task runs; and on a core that is already busy a
+    second thread only slows small products down.
+    """
+    with threadpool_limits(limits=1):
+        return fn(shared, task)
 
 
 # --------------------------------------------------------------------------
@@ -200,7 +215,6 @@ def _start_worker(fn, shared) -> None:
     matrix products twenty times slower (measured on a 2-core machine).
     """
     global _worker_fn, _worker_shared
-    from threadpoolctl import threadpool_limits
     threadpool_limits(limits=1)
     _worker_fn = fn
     _worker_shared = shared
@@ -284,7 +298,8 @@ def _run_on_cluster(fn, tasks, shared, backend, on_done) -> list:
     shared_copy, futures, finished = None, [], False
     try:
         shared_copy = client.scatter(shared, broadcast=True, hash=False)
-        futures = client.map(fn, [shared_copy] * len(tasks), tasks, pure=False)
+        futures = client.map(one_thread, [fn] * len(tasks), [shared_copy] * len(tasks), tasks,
+                             pure=False)
         position = {future.key: i for i, future in enumerate(futures)}
         results = [None] * len(tasks)
         for future in as_completed_on_cluster(futures, loop=client.loop):

@@ -26,7 +26,11 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from functools import cached_property
+
 from ..core import fit_path
+from ..core.path import GRAM_MAX_TERMS
+from ..core.arrays import aligned
 from ..core.families import get_family, null_intercept
 from .metrics import METRICS, score
 
@@ -47,14 +51,38 @@ class Problem:
     standardize: bool = True
     term_weights: np.ndarray | None = None
 
+    ARRAYS = ("X", "y", "offset", "weights", "term_weights")
+
+    def __post_init__(self):
+        self._align()
+
+    def __setstate__(self, state):
+        # Unpickled in a worker: arrays from a network frame can start at any
+        # byte; place them as in the parent (see pathfinder.core.arrays).
+        self.__dict__.update(state)
+        self._align()
+
+    def _align(self):
+        for name in self.ARRAYS:
+            object.__setattr__(self, name, aligned(getattr(self, name)))
+
     @property
     def n(self) -> int:
         return self.y.shape[0]
 
     def fit(self, rows=None, **options):
+        shortcut = self.cross_products if rows is not None and self.weights is None else None
         return fit_path(self.X, self.y, family=self.family, offset=self.offset,
                         weights=self.weights, standardize=self.standardize,
-                        term_weights=self.term_weights, rows=rows, names=self.names, **options)
+                        term_weights=self.term_weights, rows=rows, names=self.names,
+                        cross_products=shortcut, **options)
+
+    @cached_property
+    def cross_products(self):
+        """X'X of all rows, which speeds up Gaussian fits on folds (see fit_path)."""
+        if self.family != "gaussian" or self.X.shape[1] > GRAM_MAX_TERMS or self.X.shape[0] <= self.X.shape[1]:
+            return None
+        return self.X.T @ self.X
 
     def part(self, values, rows):
         return None if values is None else values[rows]
@@ -213,6 +241,7 @@ def cross_validate(problem: Problem, splits, *, mixes=(1.0,), metrics=("deviance
     fits = {float(mix): problem.fit(rows=rows, mix=float(mix), n_penalties=n_penalties,
                                     penalty_ratio=penalty_ratio) for mix in mixes}
     tasks = fold_tasks(fits, splits, metrics, FOLD_TOL if fold_tol is None else fold_tol)
+    problem.cross_products  # computed once here, shipped with the problem to workers
     results = (run or _run_here)(run_fold, tasks, problem)
     curves, picks, best_mix = summarise(fits, results, metrics, primary)
     notes = tuple(f"a fold's path at mix {r.mix:g} (fold {r.fold + 1}) stopped after "

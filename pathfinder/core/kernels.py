@@ -94,7 +94,7 @@ def cd_gram(G, grad, beta, ws, l1, l2, tol, max_sweeps):
     return sweeps
 
 
-@njit(cache=True, fastmath=True)
+@njit(cache=True)
 def _dot_weighted(W, x, r):
     """sum_i W_i x_i r_i; fastmath lets the compiler vectorise the sum."""
     s = 0.0

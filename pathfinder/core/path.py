@@ -164,7 +164,7 @@ def _check_vector(v, n, what):
 def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=100,
              penalty_ratio=None, term_weights=None, offset=None, weights=None,
              standardize=True, tol=1e-7, max_sweeps=100_000, rows=None,
-             names=None) -> PathResult:
+             names=None, cross_products=None) -> PathResult:
     """Fit a lasso / elastic-net / ridge path of a Gaussian, binomial or Poisson GLM.
 
     Parameters
@@ -185,6 +185,10 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     rows : fit on these rows of X only (y, offset and weights are given for
         all rows of X too). X is then read row block by row block and never
         copied whole: this is how folds and subsamples are fitted.
+    cross_products : optional ``X.T @ X`` of all rows of X, for repeated
+        Gaussian fits on subsets of rows (cross-validation): with uniform
+        weights a fit on ``rows`` then subtracts the rows left out instead of
+        reading the rows kept.
     tol : convergence threshold: iterations stop once no standardised
         coefficient moves by more than about ``tol`` (relative to the spread of
         the response) in a sweep; precisely, once the largest
@@ -229,7 +233,7 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     mean = weighted_mean(X, w, rows)
     if use_gram:
         solver, scale, constant = GramSolver.from_data(X, y, w, offset, mean, standardize, 1.0,
-                                                       max_sweeps, rows)
+                                                       max_sweeps, rows, cross_products)
     else:
         Xs, scale, constant = standardised_copy(X, mean, w, standardize, rows)
         solver = NaiveSolver(Xs, y, w, offset, fam, 1.0, max_sweeps)

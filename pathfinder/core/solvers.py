@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .arrays import empty_aligned
 from .families import Family, null_intercept
 from .kernels import cd_gram, cd_naive, weighted_sq_norms
 
@@ -33,24 +34,41 @@ def row_blocks(X, rows=None):
 
     ``positions`` index the rows of the fit (0..n-1). Only one block of
     ``rows`` is ever copied at a time, so a fit on a subsample (a fold, a half
-    sample) never copies the whole of X.
+    sample) never copies the whole of X. A block is a fresh copy, which the
+    caller may change in place.
     """
     n = X.shape[0] if rows is None else len(rows)
     step = block_rows(X.shape[1])
     for start in range(0, n, step):
         where = slice(start, min(start + step, n))
-        source = where if rows is None else rows[where]
-        yield where, np.array(X[source], dtype=np.float64)  # a copy: callers work in place
+        if rows is None:
+            yield where, np.array(X[where], dtype=np.float64)
+        else:
+            yield where, gather_rows(X, rows[where])
+
+
+def gather_rows(X, rows):
+    """``X[rows]`` as a new float64 array, gathered column by column when X is
+    Fortran-ordered (each column is contiguous, so this is several times faster
+    than numpy's row-wise fancy indexing)."""
+    if X.flags.f_contiguous:
+        out = empty_aligned((len(rows), X.shape[1]), "F")
+        for j in range(X.shape[1]):
+            out[:, j] = np.take(X[:, j], rows)
+        return out
+    return np.array(X[rows], dtype=np.float64)
 
 
 def weighted_mean(X, w, rows=None):
-    """Weighted column means of X's rows (``w`` sums to the number of rows)."""
+    """Weighted column means of X's rows (``w`` sums to the number of rows).
+
+    For a subset of rows the weights are spread over all rows of X (zero
+    elsewhere), so the means come from one matrix-vector product, no copy.
+    """
     if rows is None:
         return (w @ X) / X.shape[0]
-    total = np.zeros(X.shape[1])
-    for where, block in row_blocks(X, rows):
-        total += w[where] @ block
-    return total / len(rows)
+    spread = np.bincount(rows, weights=w, minlength=X.shape[0])  # repeated rows add up
+    return (spread @ X) / len(rows)
 
 
 def scale_from_variance(var, mean, standardize):
@@ -64,25 +82,40 @@ def scale_from_variance(var, mean, standardize):
     return scale, constant
 
 
-def centred_gram(X, w, mean, z, rows=None):
+def centred_gram(X, w, mean, z, rows=None, XtX=None):
     """``(X - mean)' W (X - mean) / n`` and ``(X - mean)' W z / n``.
 
     With uniform weights and all rows this is one symmetric rank-k update of
-    X itself (no copy); otherwise X is read in row blocks, holding at most one
-    block of centred, weighted rows besides X.
+    X itself (no copy). With uniform weights, distinct ``rows`` and the raw
+    ``XtX = X'X`` of all rows at hand (cross-validation computes it once), the
+    rows left out are subtracted instead: a fold costs a tenth of X'X, not
+    nine tenths. Otherwise X is read in row blocks, holding at most one block
+    of centred, weighted rows besides X.
     """
     p = X.shape[1]
     n = X.shape[0] if rows is None else len(rows)
     uniform = bool(np.all(w == w[0]))
-    if uniform and rows is None and X.dtype == np.float64:
-        # Raw cross-products, then the centring correction: no copy of X at all.
+    raw = None
+    if uniform and X.dtype == np.float64:
+        if rows is None:
+            raw = X.T @ X
+        elif XtX is not None and np.bincount(rows, minlength=X.shape[0]).max() <= 1:
+            left_out = np.setdiff1d(np.arange(X.shape[0]), rows, assume_unique=True)
+            rest = gather_rows(X, left_out)
+            raw = XtX - rest.T @ rest
+    if raw is not None:
+        # Raw cross-products, then the centring correction: no copy of X.
         # The correction loses about log10(mean^2 / variance) digits, so this
         # route is taken only while that loss stays below 8 of the 16 digits.
-        G = X.T @ X
-        var = np.diag(G) / n - mean * mean
+        var = np.diag(raw) / n - mean * mean
         if np.all(mean * mean <= 1e8 * np.maximum(var, 1e-300)):
-            G -= n * np.outer(mean, mean)
-            c = z @ X - z.sum() * mean  # z is centred, so z.sum() is ~0
+            G = raw - n * np.outer(mean, mean)
+            if rows is None:
+                c = z @ X - z.sum() * mean  # z is centred, so z.sum() is ~0
+            else:
+                spread = np.zeros(X.shape[0])
+                spread[rows] = z
+                c = spread @ X - z.sum() * mean
             return G * (w[0] / n), c * (w[0] / n)
     G = np.zeros((p, p))
     c = np.zeros(p)
@@ -104,7 +137,7 @@ def standardised_copy(X, mean, w, standardize, rows=None):
     """
     p = X.shape[1]
     n = X.shape[0] if rows is None else len(rows)
-    Xs = np.empty((n, p), dtype=np.float64, order="F")
+    Xs = empty_aligned((n, p), "F")
     var = np.empty(p)
     for j in range(p):
         Xs[:, j] = X[:, j] if rows is None else X[rows, j]
@@ -136,13 +169,13 @@ class GramSolver:
         self.max_sweeps = max_sweeps
 
     @classmethod
-    def from_data(cls, X, y, w, offset, mean, standardize, tol, max_sweeps, rows=None):
+    def from_data(cls, X, y, w, offset, mean, standardize, tol, max_sweeps, rows=None, XtX=None):
         """Build from the data; returns the solver, the scales and the no-spread flags."""
         n = y.shape[0]
         z = y - offset
         ybar = float(w @ z / n)
         zc = z - ybar
-        G, c = centred_gram(X, w, mean, zc, rows)
+        G, c = centred_gram(X, w, mean, zc, rows, XtX)
         scale, constant = scale_from_variance(np.diag(G).copy(), mean, standardize)
         G /= scale[:, None] * scale[None, :]
         c /= scale

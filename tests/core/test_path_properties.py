@@ -220,3 +220,14 @@ def test_the_callers_data_are_never_changed(family):
     fit_path(X, y, family=family, weights=w, offset=off, n_penalties=10, rows=np.arange(60))
     for a, b in zip((X, y, w, off), before):
         assert np.array_equal(a, b)
+
+
+@pytest.mark.parametrize("family", FAMILIES)
+def test_repeated_rows_count_twice(family):
+    # A bootstrap sample lists some rows twice: fitting on those rows must equal
+    # fitting on the explicitly duplicated table.
+    X, y = _data(14, family, n=100, p=5)
+    rows = np.random.default_rng(5).integers(0, 100, 100)
+    on_rows = fit_path(np.asfortranarray(X), y, family=family, rows=rows, n_penalties=15)
+    copied = fit_path(X[rows], y[rows], family=family, penalties=on_rows.penalties)
+    assert np.allclose(on_rows.coef, copied.coef, atol=1e-10)

@@ -1,0 +1,461 @@
+"""Compiled loops of the best-subset and stepwise searches (numba, cached on disk).
+
+Both exhaustive searches walk the tree of subsets depth first, in
+lexicographic order of the sorted member indices: the children of a subset S
+whose largest member is m are S + {j} for j > m. Every subset of up to
+``max_size`` members is visited once, and each is reached from its parent, so
+the work done for the parent is reused:
+
+* :func:`gaussian_search` (least squares) works on the centred weighted
+  cross-product matrix of the standardised predictors and the response. The
+  residual sum of squares of S + {j} follows from the parent's Schur
+  complement by one division (``RSS(S) - c_jy^2 / c_jj``); a subset that has
+  children needs one symmetric elimination step on the indices above j. The
+  number of rows never enters the loop.
+* :func:`glm_search` (binomial, Poisson) refits each subset by Newton's
+  method, started from its parent's coefficients with the new one at zero.
+  At that start the linear predictor is the parent's, so the first Hessian
+  only needs one new row (``O(n |S|)`` instead of ``O(n |S|^2)``); one or two
+  further Newton steps usually reach the tolerance.
+
+A search can start at any position of the sequence and visit ``count``
+subsets from there: the parents of the first subset are rebuilt by the same
+steps in the same order as a search from the beginning would take, so every
+subset's figures are identical however the sequence is cut into tasks.
+
+Subsets are kept per size in fixed slots ("best ``cap[s]`` of size s"): a new
+subset replaces the worst kept one when it is better. Better means a larger
+score (log-likelihood up to a constant), ties going to the earlier subset in
+lexicographic order, a total order, so the kept set does not depend on the
+order in which subsets were met.
+
+Nearly collinear terms: a term whose residual variance given the others is
+below ``alias_tol`` times its own is treated as aliased (its coefficient is
+held at zero), as a generalised inverse would.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+# Reassociation lets the compiler vectorise the long sums over rows; no flag
+# that assumes finite values is set, so infinities still propagate.
+_FAST = {"nsz", "arcp", "contract", "reassoc"}
+
+GAUSSIAN, BINOMIAL, POISSON = 0, 1, 2
+_ETA_CAP = 500.0          # exp() of a Poisson linear predictor stays finite
+_VAR_FLOOR = 1e-12        # smallest binomial variance mu (1 - mu) used in the Hessian
+_MAX_HALVINGS = 40
+
+
+# ---- keeping the best subsets of each size -------------------------------------
+
+@njit(cache=True)
+def _better(score_a, members_a, score_b, members_b, size):
+    """Is subset a ranked above subset b (same size)? Larger score, then earlier order."""
+    if score_a != score_b:
+        return score_a > score_b
+    for t in range(size):
+        if members_a[t] != members_b[t]:
+            return members_a[t] < members_b[t]
+    return False
+
+
+@njit(cache=True)
+def _find_worst(size, base, filled, best_score, best_members):
+    worst = base
+    for s in range(base + 1, base + filled):
+        if _better(best_score[worst], best_members[worst], best_score[s], best_members[s], size):
+            worst = s
+    return worst
+
+
+@njit(cache=True)
+def _record(size, score, members, beta, slot_start, cap, filled, worst,
+            best_score, best_members, best_coef):
+    """Offer one subset to the slots of its size; keep it if it is among the best."""
+    if score != score:  # NaN never wins
+        score = -np.inf
+    c = cap[size]
+    if c == 0:
+        return
+    base = slot_start[size]
+    if filled[size] < c:
+        slot = base + filled[size]
+        filled[size] += 1
+    else:
+        slot = worst[size]
+        if not _better(score, members, best_score[slot], best_members[slot], size):
+            return
+    best_score[slot] = score
+    for t in range(size):
+        best_members[slot, t] = members[t]
+    for t in range(min(best_coef.shape[1], size + 1)):
+        best_coef[slot, t] = beta[t]
+    if filled[size] == c:
+        worst[size] = _find_worst(size, base, c, best_score, best_members)
+
+
+# ---- least squares: elimination on the cross-product matrix --------------------
+
+@njit(cache=True)
+def _pivot_rss(M, j, yv, diag0, alias_tol):
+    """RSS after adding term j to the model whose Schur complement is M; and is j aliased?"""
+    piv = M[j, j]
+    if not (piv > alias_tol * diag0[j]):
+        return M[yv, yv], True
+    return M[yv, yv] - (M[yv, j] / piv) * M[j, yv], False
+
+
+@njit(cache=True)
+def _eliminate(Mi, Mo, j, yv, aliased):
+    """Schur complement of pivot j, on the indices above j and the response only."""
+    if aliased:
+        for a in range(j + 1, yv + 1):
+            for b in range(j + 1, yv + 1):
+                Mo[a, b] = Mi[a, b]
+        return
+    piv = Mi[j, j]
+    for a in range(j + 1, yv + 1):
+        f = Mi[a, j] / piv
+        for b in range(j + 1, yv + 1):
+            Mo[a, b] = Mi[a, b] - f * Mi[j, b]
+
+
+@njit(cache=True)
+def gaussian_search(A, start, count, max_size, alias_tol, slot_start, cap,
+                    best_score, best_members):
+    """Visit ``count`` subsets from ``start`` (sorted members); keep the smallest RSS per size.
+
+    ``A`` is the (p + 1, p + 1) centred weighted cross-product matrix of the
+    standardised predictors and (last) the response. Scores are ``-RSS``.
+    Returns the number of subsets visited.
+    """
+    q = A.shape[0]
+    p = q - 1
+    yv = p
+    depth_max = max_size + 1
+    M = np.empty((depth_max, q, q))
+    M[0] = A
+    diag0 = np.empty(p)
+    for j in range(p):
+        diag0[j] = A[j, j]
+    members = np.zeros(max(max_size, 1), dtype=np.int64)
+    nxt = np.zeros(depth_max + 1, dtype=np.int64)
+    filled = np.zeros(max_size + 1, dtype=np.int64)
+    worst = np.zeros(max_size + 1, dtype=np.int64)
+    no_coef = np.empty((0, 0))
+    no_beta = np.empty(0)
+
+    # Rebuild the parents of the first subset exactly as a search from the start would.
+    d = start.shape[0]
+    rss = A[yv, yv]
+    for i in range(d):
+        j = start[i]
+        members[i] = j
+        rss, aliased = _pivot_rss(M[i], j, yv, diag0, alias_tol)
+        if i + 1 < max_size and j + 1 < p:
+            _eliminate(M[i], M[i + 1], j, yv, aliased)
+        nxt[i] = j + 1
+    nxt[d] = start[d - 1] + 1 if d > 0 else 0
+    _record(d, -rss, members, no_beta, slot_start, cap, filled, worst,
+            best_score, best_members, no_coef)
+    done = 1
+    while done < count:
+        while d >= 0 and not (d < max_size and nxt[d] < p):
+            d -= 1
+        if d < 0:
+            break
+        j = nxt[d]
+        nxt[d] = j + 1
+        members[d] = j
+        rss, aliased = _pivot_rss(M[d], j, yv, diag0, alias_tol)
+        if d + 1 < max_size and j + 1 < p:
+            _eliminate(M[d], M[d + 1], j, yv, aliased)
+        d += 1
+        nxt[d] = j + 1
+        _record(d, -rss, members, no_beta, slot_start, cap, filled, worst,
+                best_score, best_members, no_coef)
+        done += 1
+    return done
+
+
+# ---- GLMs: Newton's method on a few columns ------------------------------------
+
+@njit(cache=True, fastmath=_FAST)
+def _dot(a, b):
+    s = 0.0
+    for i in range(a.shape[0]):
+        s += a[i] * b[i]
+    return s
+
+
+@njit(cache=True, fastmath=_FAST)
+def _sum(a):
+    s = 0.0
+    for i in range(a.shape[0]):
+        s += a[i]
+    return s
+
+
+@njit(cache=True)
+def _rows(Xt, y, w, off, fam, members, k, beta, eta, v, r):
+    """Linear predictor, working weights ``v = w V(mu)``, ``r = w (y - mu)`` and the objective.
+
+    The objective is the log-likelihood without the terms free of the
+    coefficients: binomial ``sum w (y eta - log(1 + e^eta))``, Poisson
+    ``sum w (y eta - e^eta)``, Gaussian ``-sum w (y - eta)^2 / 2``.
+    """
+    n = y.shape[0]
+    b0 = beta[0]
+    for i in range(n):
+        eta[i] = b0 + off[i]
+    for a in range(k):
+        b = beta[a + 1]
+        if b != 0.0:
+            col = Xt[members[a]]
+            for i in range(n):
+                eta[i] += b * col[i]
+    f = 0.0
+    if fam == BINOMIAL:
+        for i in range(n):
+            e = eta[i]
+            t = np.exp(-abs(e))
+            if e >= 0:
+                m = 1.0 / (1.0 + t)
+                soft = e + np.log1p(t)
+            else:
+                m = t / (1.0 + t)
+                soft = np.log1p(t)
+            f += w[i] * (y[i] * e - soft)
+            var = m * (1.0 - m)
+            v[i] = w[i] * (var if var > _VAR_FLOOR else _VAR_FLOOR)
+            r[i] = w[i] * (y[i] - m)
+    elif fam == POISSON:
+        for i in range(n):
+            e = eta[i] if eta[i] < _ETA_CAP else _ETA_CAP
+            m = np.exp(e)
+            f += w[i] * (y[i] * eta[i] - m)
+            v[i] = w[i] * m
+            r[i] = w[i] * (y[i] - m)
+    else:
+        for i in range(n):
+            res = y[i] - eta[i]
+            f -= 0.5 * w[i] * res * res
+            v[i] = w[i]
+            r[i] = w[i] * res
+    return f
+
+
+@njit(cache=True)
+def _pass(Xt, y, w, off, fam, members, k, beta, g, H, from_col, work):
+    """Objective, gradient and Hessian at ``beta`` (intercept first, then ``members[:k]``).
+
+    Only the gradient entries and Hessian rows of the columns at positions
+    ``>= from_col`` are computed (and the intercept's when ``from_col == 0``);
+    the rest must already hold the right values (a child keeps its parent's).
+    """
+    eta, v, r, vx = work[0], work[1], work[2], work[3]
+    f = _rows(Xt, y, w, off, fam, members, k, beta, eta, v, r)
+    if from_col == 0:
+        g[0] = _sum(r)
+        H[0, 0] = _sum(v)
+    for a in range(from_col, k):
+        col = Xt[members[a]]
+        g[a + 1] = _dot(r, col)
+        for i in range(vx.shape[0]):
+            vx[i] = v[i] * col[i]
+        h = _sum(vx)
+        H[a + 1, 0] = h
+        H[0, a + 1] = h
+        for b in range(a + 1):
+            h = _dot(vx, Xt[members[b]])
+            H[a + 1, b + 1] = h
+            H[b + 1, a + 1] = h
+    return f
+
+
+@njit(cache=True)
+def _solve(H, g, q, L, step, alias_tol):
+    """Newton step ``H^-1 g`` by Cholesky, aliased columns held at zero; returns ``g.step / 2``."""
+    for c in range(q):
+        s = H[c, c]
+        for t in range(c):
+            s -= L[c, t] * L[c, t]
+        if not (H[c, c] > 0.0 and s > alias_tol * H[c, c]):
+            for rr in range(c, q):
+                L[rr, c] = 0.0
+            continue
+        d = np.sqrt(s)
+        L[c, c] = d
+        for rr in range(c + 1, q):
+            s2 = H[rr, c]
+            for t in range(c):
+                s2 -= L[rr, t] * L[c, t]
+            L[rr, c] = s2 / d
+    for c in range(q):
+        if L[c, c] == 0.0:
+            step[c] = 0.0
+            continue
+        s = g[c]
+        for t in range(c):
+            s -= L[c, t] * step[t]
+        step[c] = s / L[c, c]
+    for c in range(q - 1, -1, -1):
+        if L[c, c] == 0.0:
+            step[c] = 0.0
+            continue
+        s = step[c]
+        for t in range(c + 1, q):
+            s -= L[t, c] * step[t]
+        step[c] = s / L[c, c]
+    dec = 0.0
+    for c in range(q):
+        dec += g[c] * step[c]
+    return 0.5 * dec
+
+
+@njit(cache=True)
+def _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol, max_iter, alias_tol,
+            work, small, H_new, L):
+    """Newton's method from ``beta`` where ``f, g, H`` are already known; updates them in place.
+
+    Stops when the Newton decrement ``g' H^-1 g / 2`` (the predicted gain in
+    log-likelihood) is below ``tol * (|f| + 1)``. Each step is halved until the
+    objective does not fall. Returns ``(f, converged)``.
+    """
+    q = k + 1
+    trial, step, g_new = small[0], small[1], small[2]
+    it = 0
+    while True:
+        dec = _solve(H, g, q, L, step, alias_tol)
+        if dec <= tol * (abs(f) + 1.0):
+            return f, True
+        if it >= max_iter:
+            return f, False
+        it += 1
+        t = 1.0
+        accepted = False
+        f_new = f
+        for _ in range(_MAX_HALVINGS):
+            for c in range(q):
+                trial[c] = beta[c] + t * step[c]
+            f_new = _pass(Xt, y, w, off, fam, members, k, trial, g_new, H_new, 0, work)
+            if f_new >= f - 1e-13 * (abs(f) + 1.0):
+                accepted = True
+                break
+            t *= 0.5
+        if not accepted:
+            # No step gains: the objective is flat to rounding at beta (g, H still hold beta's).
+            return f, dec <= 1e-8 * (abs(f) + 1.0)
+        for c in range(q):
+            beta[c] = trial[c]
+            g[c] = g_new[c]
+            for e in range(q):
+                H[c, e] = H_new[c, e]
+        f = f_new
+
+
+@njit(cache=True)
+def fit_subset(Xt, y, w, off, fam, members, beta, tol, max_iter, alias_tol):
+    """Maximum-likelihood fit on the columns ``members`` from the start ``beta`` (updated in place).
+
+    ``Xt`` is (p, n): one standardised predictor per row. Returns
+    ``(objective, converged)``; see :func:`_rows` for the objective.
+    """
+    k = members.shape[0]
+    q = k + 1
+    n = y.shape[0]
+    work = np.empty((4, n))
+    small = np.empty((3, q))
+    g = np.empty(q)
+    H = np.empty((q, q))
+    H_new = np.empty((q, q))
+    L = np.zeros((q, q))
+    f = _pass(Xt, y, w, off, fam, members, k, beta, g, H, 0, work)
+    return _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol, max_iter, alias_tol,
+                   work, small, H_new, L)
+
+
+@njit(cache=True)
+def _fit_child(Xt, y, w, off, fam, members, d, betas, gs, Hs, fs, tol, max_iter, alias_tol,
+               work, small, H_new, L):
+    """Fit the subset ``members[:d + 1]`` from its parent (depth d) with the new coefficient at 0."""
+    k = d + 1
+    beta, g, H = betas[k], gs[k], Hs[k]
+    for c in range(d + 1):
+        beta[c] = betas[d, c]
+        g[c] = gs[d, c]
+        for e in range(d + 1):
+            H[c, e] = Hs[d, c, e]
+    beta[k] = 0.0
+    f = _pass(Xt, y, w, off, fam, members, k, beta, g, H, k - 1, work)
+    f, converged = _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol, max_iter,
+                           alias_tol, work, small, H_new, L)
+    fs[k] = f
+    return converged
+
+
+@njit(cache=True)
+def glm_search(Xt, y, w, off, fam, intercept_start, start, count, max_size, tol, max_iter,
+               alias_tol, slot_start, cap, best_score, best_members, best_coef):
+    """Visit ``count`` subsets from ``start``; keep the largest log-likelihood per size.
+
+    ``Xt`` is (p, n), one standardised predictor per row. The standardised
+    coefficients of kept subsets (intercept first) go to ``best_coef``.
+    Returns ``(subsets visited, fits that did not converge)``.
+    """
+    p, n = Xt.shape
+    depth_max = max_size + 1
+    q = max_size + 1
+    betas = np.zeros((depth_max, q))
+    gs = np.zeros((depth_max, q))
+    Hs = np.zeros((depth_max, q, q))
+    fs = np.zeros(depth_max)
+    work = np.empty((4, n))
+    small = np.empty((3, q))
+    H_new = np.empty((q, q))
+    L = np.zeros((q, q))
+    members = np.zeros(max(max_size, 1), dtype=np.int64)
+    nxt = np.zeros(depth_max + 1, dtype=np.int64)
+    filled = np.zeros(max_size + 1, dtype=np.int64)
+    worst = np.zeros(max_size + 1, dtype=np.int64)
+    not_converged = 0
+
+    # The intercept-only model, then the parents of the first subset, as from the start.
+    betas[0, 0] = intercept_start
+    f = _pass(Xt, y, w, off, fam, members, 0, betas[0], gs[0], Hs[0], 0, work)
+    fs[0], converged = _newton(Xt, y, w, off, fam, members, 0, betas[0], gs[0], Hs[0], f, tol,
+                               max_iter, alias_tol, work, small, H_new, L)
+    d = start.shape[0]
+    if d == 0 and not converged:
+        not_converged += 1
+    for i in range(d):
+        members[i] = start[i]
+        converged = _fit_child(Xt, y, w, off, fam, members, i, betas, gs, Hs, fs, tol, max_iter,
+                               alias_tol, work, small, H_new, L)
+        nxt[i] = start[i] + 1
+        if i == d - 1 and not converged:
+            not_converged += 1
+    nxt[d] = start[d - 1] + 1 if d > 0 else 0
+    _record(d, fs[d], members, betas[d], slot_start, cap, filled, worst,
+            best_score, best_members, best_coef)
+    done = 1
+    while done < count:
+        while d >= 0 and not (d < max_size and nxt[d] < p):
+            d -= 1
+        if d < 0:
+            break
+        j = nxt[d]
+        nxt[d] = j + 1
+        members[d] = j
+        if not _fit_child(Xt, y, w, off, fam, members, d, betas, gs, Hs, fs, tol, max_iter,
+                          alias_tol, work, small, H_new, L):
+            not_converged += 1
+        d += 1
+        nxt[d] = j + 1
+        _record(d, fs[d], members, betas[d], slot_start, cap, filled, worst,
+                best_score, best_members, best_coef)
+        done += 1
+    return done, not_converged
