@@ -45,63 +45,73 @@ def _coords(text):
     return names
 
 
+# Every study option defaults to None here, so that an option given on the
+# command line can be told from one left out; left-out options come from the
+# study file (--config) or else from StudyOptions' own defaults.
+
 def _add_table_options(p):
-    p.add_argument("data", help="the survey table: a CSV file (any common delimiter) or a Parquet file")
-    p.add_argument("--response", required=True, metavar="COL", help="the column to model")
-    p.add_argument("--family", default="auto", choices=["auto", "gaussian", "binomial", "poisson"],
+    p.add_argument("data", nargs="?", help="the survey table: a CSV file (any common delimiter) or "
+                                           "a Parquet file (may instead be named in the study file)")
+    p.add_argument("--response", metavar="COL", help="the column to model (required here or in the study file)")
+    p.add_argument("--family", choices=["auto", "gaussian", "binomial", "poisson"],
                    help="binomial for presence/absence, poisson for counts, gaussian for a "
-                        "continuous measure; auto picks one from the response and says why")
+                        "continuous measure; auto (default) picks one from the response and says why")
     p.add_argument("--predictors", type=_names, metavar="A,B,..",
                    help="predictor columns (default: every column with no other role)")
-    p.add_argument("--exclude", type=_names, default=(), metavar="A,B,..",
+    p.add_argument("--exclude", type=_names, metavar="A,B,..",
                    help="columns to leave out of the predictors (site labels, notes)")
-    p.add_argument("--categorical", type=_names, default=(), metavar="A,B,..",
+    p.add_argument("--categorical", type=_names, metavar="A,B,..",
                    help="number-coded columns to treat as classes (e.g. a habitat code)")
     p.add_argument("--effort", metavar="COL", help="survey effort (positive); its log becomes the offset")
     p.add_argument("--offset", metavar="COL", help="a column added to the linear predictor as is")
     p.add_argument("--weights", metavar="COL", help="observation weights (non-negative)")
     p.add_argument("--coords", type=_coords, metavar="XCOL,YCOL", help="site coordinates")
     p.add_argument("--groups", metavar="COL", help="a grouping column (site, region, year)")
-    p.add_argument("--missing", choices=["drop", "refuse"], default="drop",
+    p.add_argument("--missing", choices=["drop", "refuse"],
                    help="rows with missing values: drop and count them (default) or stop")
     p.add_argument("--decimal", choices=[".", ","], help="decimal mark of the CSV (',' for decimal commas)")
     p.add_argument("--delimiter", help="field delimiter of the CSV (default: detected)")
 
 
 def _add_model_options(p):
-    p.add_argument("--squares", nargs="?", const=True, default=False, type=_names, metavar="A,B,..",
+    p.add_argument("--squares", nargs="?", const=True, type=_names, metavar="A,B,..",
                    help="add centred squared terms (unimodal responses): for all numeric "
                         "predictors, or those listed")
-    p.add_argument("--interactions", action="store_true",
+    p.add_argument("--interactions", action="store_const", const=True,
                    help="add every pairwise interaction of numeric predictors (centred)")
-    p.add_argument("--mix", type=_numbers, default=None, metavar="M1,M2,..",
+    p.add_argument("--mix", dest="mixes", type=_numbers, metavar="M1,M2,..",
                    help="lasso-to-ridge mix values: 1 lasso, 0 ridge, between: elastic net "
                         "(default 1,0.75,0.5,0.25,0)")
-    p.add_argument("--penalties", type=int, default=100, metavar="N", help="penalties on the path (default 100)")
+    p.add_argument("--penalties", dest="n_penalties", type=int, metavar="N",
+                   help="penalties on the path (default 100)")
     p.add_argument("--penalty-ratio", type=float, metavar="R",
                    help="smallest penalty as a fraction of the largest (default 1e-4, or 1e-2 when "
                         "there are more terms than rows)")
-    p.add_argument("--seed", type=int, default=1, help="seed for every random choice (default 1)")
+    p.add_argument("--seed", type=int, help="seed for every random choice (default 1)")
 
 
 def _add_choosing_options(p):
-    p.add_argument("--folds", type=int, default=10, metavar="K", help="cross-validation folds (default 10)")
+    p.add_argument("--folds", type=int, metavar="K", help="cross-validation folds (default 10)")
     p.add_argument("--block-size", type=float, metavar="S",
                    help="spatial blocks: square blocks of this size in coordinate units, whole "
                         "blocks to a fold (needs --coords)")
     p.add_argument("--fold-column", metavar="COL", help="a column that gives each site's fold")
-    p.add_argument("--repeats", type=int, default=1, metavar="R", help="repeat cross-validation R times")
-    p.add_argument("--metric", default="deviance",
+    p.add_argument("--repeats", type=int, metavar="R", help="repeat cross-validation R times")
+    p.add_argument("--metric",
                    choices=["deviance", "mse", "mae", "auc", "brier", "log_loss", "deviance_explained"],
                    help="held-out measure that picks the penalty (default deviance)")
-    p.add_argument("--no-relax", action="store_true", help="skip the relaxed lasso")
-    p.add_argument("--no-nested", action="store_true",
+    p.add_argument("--no-relax", dest="relax", action="store_const", const=False,
+                   help="skip the relaxed lasso")
+    p.add_argument("--no-nested", dest="nested", action="store_const", const=False,
                    help="skip nested cross-validation (faster, but no honest error for the comparison)")
-    p.add_argument("--inner-folds", type=int, default=5, metavar="K",
+    p.add_argument("--inner-folds", type=int, metavar="K",
                    help="folds inside each outer training set in nested cross-validation (default 5)")
     p.add_argument("--jobs", type=int, default=1, metavar="N", help="local worker processes (default 1)")
     p.add_argument("--cluster", metavar="ADDRESS",
                    help="send repeated fits to a running Dask scheduler, e.g. tcp://host:8786")
+    p.add_argument("--config", metavar="FILE.toml",
+                   help="a study file holding any of these options (a run.json works too); "
+                        "options given here override it")
 
 
 def _add_output_options(p, default_out=None):
@@ -149,17 +159,26 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _options_from(args):
-    from .study import DEFAULT_MIXES, StudyOptions
-    return StudyOptions(
-        response=args.response, family=args.family, predictors=args.predictors,
-        exclude=tuple(args.exclude), categorical=tuple(args.categorical), effort=args.effort,
-        offset=args.offset, weights=args.weights, coords=args.coords, groups=args.groups,
-        fold_column=args.fold_column, missing=args.missing, decimal=args.decimal,
-        delimiter=args.delimiter, squares=args.squares, interactions=args.interactions,
-        mixes=tuple(args.mix) if args.mix else DEFAULT_MIXES, n_penalties=args.penalties,
-        penalty_ratio=args.penalty_ratio, folds=args.folds, block_size=args.block_size,
-        repeats=args.repeats, metric=args.metric, relax=not args.no_relax,
-        nested=not args.no_nested, inner_folds=args.inner_folds, seed=args.seed)
+    """StudyOptions from the study file (if any), overridden by the command line."""
+    from dataclasses import fields
+
+    from .study import StudyOptions
+    from .study_file import read_study_file
+    settings = read_study_file(args.config) if args.config else {}
+    names = [f.name for f in fields(StudyOptions)]
+    for name in names:
+        value = getattr(args, name, None)
+        if value is not None:
+            settings[name] = value
+    data = args.data or settings.pop("data", None)
+    settings.pop("data", None)
+    if data is None:
+        raise InputError("name the survey table: pathfinder explore DATA --response COL "
+                         "(or 'data = ...' in the study file)")
+    if not settings.get("response"):
+        raise InputError("name the response column with --response COL (or 'response = ...' "
+                         "in the study file)")
+    return data, StudyOptions(**settings)
 
 
 def _backend(args):
@@ -172,10 +191,10 @@ def _backend(args):
 def run_explore(args) -> int:
     from .outputs.folder import check_target
     from .study import explore
-    check_target(args.out, overwrite=args.overwrite, inputs=[args.data])
-    options = _options_from(args)
-    study = explore(Path(args.data), options, backend=_backend(args), progress=_progress(args))
-    return _finish(study, args, command="explore", inputs=[args.data])
+    data, options = _options_from(args)
+    check_target(args.out, overwrite=args.overwrite, inputs=[data])
+    study = explore(Path(data), options, backend=_backend(args), progress=_progress(args))
+    return _finish(study, args, command="explore", inputs=[data])
 
 
 def run_demo(args) -> int:
