@@ -155,6 +155,21 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("--quick", action="store_true", help="skip nested cross-validation (faster)")
     _add_output_options(demo, default_out=DEMO_FOLDER)
     demo.set_defaults(run=run_demo)
+
+    predict = commands.add_parser(
+        "predict", help="predict at new sites from a model file",
+        description="Predict at the sites of a table with a model.json written by explore, "
+                    "flagging sites outside the sampled conditions (training range and MESS).",
+        epilog="example:\n  pathfinder predict results/model.json new_sites.csv --out predictions.csv",
+        formatter_class=argparse.RawDescriptionHelpFormatter)
+    predict.add_argument("model", metavar="MODEL.json", help="the model file written by pathfinder explore")
+    predict.add_argument("data", help="the table of new sites: CSV or Parquet")
+    predict.add_argument("--out", metavar="FILE", help="write the predictions as CSV (default: standard output)")
+    predict.add_argument("--link", action="store_true", help="add the linear predictor (column 'link')")
+    predict.add_argument("--decimal", choices=[".", ","], help="decimal mark of the CSV")
+    predict.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    predict.add_argument("--debug", action="store_true", help="show the full traceback of an internal fault")
+    predict.set_defaults(run=run_predict)
     return parser
 
 
@@ -221,6 +236,19 @@ def run_demo(args) -> int:
     return _finish(study, args, command="demo")
 
 
+def run_predict(args) -> int:
+    from .predict import predict_table, prediction_summary
+    result = predict_table(args.model, args.data, args.out, decimal=args.decimal,
+                           kind="both" if args.link else "response")
+    if args.out is None:
+        result.to_csv(sys.stdout, index=False, lineterminator="\n")
+    if not args.quiet:
+        for note in result.attrs.get("notes", ()):
+            print(f"note: {note}", file=sys.stderr)
+        print(prediction_summary(result), file=sys.stderr)
+    return 0
+
+
 def _progress(args):
     if args.quiet or args.json:
         return None
@@ -265,7 +293,7 @@ def main(argv=None) -> int:
     try:
         args = build_parser().parse_args(argv)
         if args.command is None:
-            raise InputError("choose a command: explore, demo (see 'pathfinder --help')")
+            raise InputError("choose a command: explore, demo, screen or predict (see 'pathfinder --help')")
         return args.run(args)
     except InputError as error:
         print(f"pathfinder: {error.message}", file=sys.stderr)

@@ -24,9 +24,11 @@ from .choose.criteria import information_criteria
 from .choose.cv import Problem, cross_validate
 from .choose.folds import make_folds
 from .choose.metrics import METRICS
-from .choose.nested import FoldPlan, choices, comparison_table, nested_cv
+from .choose.nested import FoldPlan, choices, comparison_table, held_out_predictions, nested_cv, recommend
 from .choose.relaxed import relaxed_lasso
 from .data.design import Design, build_design
+from .diagnostics.collinearity import correlation_clusters, correlation_matrix, variance_inflation
+from .diagnostics.response_curves import response_curves
 from .data.intake import Survey, TableInfo, prepare_survey, read_table
 from .errors import FitWarning, InputError
 from .outputs import tables
@@ -113,6 +115,7 @@ class Study:
     cv: object
     relaxed: object
     choices: list
+    chosen: object                # the Choice pathfinder suggests (see choose.nested.recommend)
     tables: dict                  # name -> DataFrame (written as name.csv)
     timings: dict
     backend: str
@@ -232,13 +235,18 @@ def explore(data, options: StudyOptions, *, backend: Backend | None = None, prog
         "folds": tables.folds_table(folds, survey.rows),
         "correlations": tables.correlations_table(design),
     }
+    comparison = None
     if outer is not None:
-        result_tables["comparison"] = comparison_table(full_choices, outer, options.metric)
+        comparison = comparison_table(full_choices, outer, options.metric)
+        result_tables["comparison"] = comparison
         result_tables["outer_folds"] = outer
+    chosen = recommend(comparison, full_choices)
+    result_tables.update(stages.run("describing the chosen model", lambda _: _chosen_tables(
+        chosen, problem, survey, design, folds, cv, splits)))
     notes = tuple(survey.notes) + tuple(folds.notes) + tuple(cv.notes)
     return Study(
         options=options, survey=survey, design=design, table_info=info, folds=folds, cv=cv,
-        relaxed=relaxed, choices=full_choices, tables=result_tables, timings=stages.timings,
+        relaxed=relaxed, choices=full_choices, chosen=chosen, tables=result_tables, timings=stages.timings,
         backend=describe(backend), warnings=tuple(survey.warnings) + fit_warnings, notes=notes,
     )
 
@@ -252,3 +260,33 @@ def _criteria_table(fits: dict, problem: Problem) -> pd.DataFrame:
         frame.insert(0, "method", method_name(mix))
         parts.append(frame)
     return pd.concat(parts, ignore_index=True)
+
+
+def _chosen_tables(chosen, problem, survey, design, folds, cv, splits) -> dict:
+    """Tables about the suggested model and the sites: chosen, sites, curves, rug, vif."""
+    from .core.families import get_family
+    fam = get_family(survey.family)
+    sd = design.X.std(axis=0)
+    chosen_table = pd.DataFrame({
+        "term": design.names, "estimate": chosen.coef, "estimate_std": chosen.coef * sd,
+    })
+    chosen_table = chosen_table[chosen_table.estimate != 0].reset_index(drop=True)
+    fitted = fam.inverse_link(problem.linear_predictor(
+        np.array([chosen.intercept]), chosen.coef[None, :], np.arange(problem.n))[:, 0])
+    held = held_out_predictions(problem, folds.splits(0), chosen, cv.fits[chosen.mix].penalties)
+    sites = pd.DataFrame({"row": survey.rows + 1})
+    if survey.coords is not None:
+        sites["x"], sites["y"] = survey.coords[:, 0], survey.coords[:, 1]
+    sites["fold"] = folds.fold + 1
+    sites["observed"] = survey.response
+    sites["fitted"] = fitted
+    sites["held_out"] = held
+    sites["held_out_residual"] = survey.response - held
+    curves, rug = response_curves(survey.frame, survey.categorical, design.terms,
+                                  design.reference_levels, chosen.intercept, chosen.coef, survey.family)
+    R = correlation_matrix(design.X, survey.weights)
+    vif = pd.DataFrame({"term": design.names, "vif": variance_inflation(design.X, survey.weights),
+                        "cluster": correlation_clusters(R)})
+    chosen_table.insert(0, "method", chosen.method)
+    chosen_table.insert(1, "rule", chosen.rule)
+    return {"chosen": chosen_table, "sites": sites, "response_curves": curves, "rug": rug, "vif": vif}

@@ -58,6 +58,7 @@ class Choice:
     coef: np.ndarray
     inner_score: float
     names: tuple
+    relax: float | None = None
 
     @property
     def terms(self) -> tuple:
@@ -91,7 +92,7 @@ def choices(cv, relaxed=None) -> list[Choice]:
         for _, pick in relaxed.picks.iterrows():
             b0, b = relaxed.models[pick.rule]
             out.append(Choice("relaxed lasso", pick.rule, 1.0, float(pick.penalty), float(b0), b,
-                              float(pick.cv_mean), lasso.names))
+                              float(pick.cv_mean), lasso.names, relax=float(pick.relax)))
     return out
 
 
@@ -189,3 +190,51 @@ def comparison_table(full_choices, outer: pd.DataFrame, metric: str) -> pd.DataF
             "cv_score": choice.inner_score,
         })
     return pd.DataFrame(rows)
+
+
+def recommend(comparison: pd.DataFrame | None, full_choices) -> Choice:
+    """The model pathfinder suggests, by a one-standard-error rule across methods.
+
+    Among every method and pick rule, take the smallest outer-fold error; of
+    the choices whose outer error lies within one outer standard error of it,
+    suggest the one with the fewest terms (ties: the smaller outer error).
+    Without nested cross-validation: the lasso's one-SE pick (or the first
+    choice there is).
+    """
+    if comparison is None or comparison.outer_mean.isna().all():
+        for choice in full_choices:
+            if choice.method == "lasso" and choice.rule == "one_se":
+                return choice
+        return full_choices[0]
+    table = comparison.reset_index(drop=True)
+    best = table.outer_mean.idxmin()
+    bound = table.outer_mean[best] + (table.outer_se[best] if np.isfinite(table.outer_se[best]) else 0)
+    near = table[table.outer_mean <= bound].sort_values(["n_terms", "outer_mean"], kind="stable")
+    winner = near.iloc[0]
+    for choice in full_choices:
+        if choice.method == winner.method and choice.rule == winner.rule:
+            return choice
+    raise ValueError("the comparison names a choice that was not made")
+
+
+def held_out_predictions(problem: Problem, splits, choice: Choice, grid) -> np.ndarray:
+    """Each site's prediction from the model refitted without its fold (response scale).
+
+    The penalised methods are refitted at the chosen penalty on each fold's
+    training rows (on the full grid down to that penalty, as the path was
+    fitted); the relaxed lasso is blended with its refit at the chosen
+    relaxation.
+    """
+    from .relaxed import refit
+    fam = get_family(problem.family)
+    out = np.full(problem.n, np.nan)
+    steps = grid[grid >= choice.penalty * (1 - 1e-12)]
+    for train, test in splits:
+        fit = problem.fit(rows=train, mix=choice.mix, penalties=steps, tol=1e-5)
+        b0, b = fit.intercept[-1], fit.coef[-1]
+        if choice.relax is not None:
+            r0, r = refit(problem, train, np.flatnonzero(b))
+            b0, b = choice.relax * b0 + (1 - choice.relax) * r0, choice.relax * b + (1 - choice.relax) * r
+        eta = problem.linear_predictor(np.array([b0]), b[None, :], test)[:, 0]
+        out[test] = fam.inverse_link(eta)
+    return out

@@ -5,8 +5,25 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
+from .. import __version__
 from .folder import output_folder
+from .model_file import model_document, save_model
 from .record import run_record
+
+
+def model_of(study) -> dict:
+    """The model file of the suggested choice (see choose.nested.recommend)."""
+    choice, survey, design = study.chosen, study.survey, study.design
+    return model_document(
+        family=survey.family, response_name=survey.response_name,
+        response_labels=survey.response_labels, terms=design.terms,
+        reference_levels=design.reference_levels, intercept=choice.intercept, coef=choice.coef,
+        offset_rule=survey.offset_rule, training_frame=survey.frame, training_X=design.X,
+        weights=survey.weights,
+        pick={"method": choice.method, "rule": choice.rule, "mix": choice.mix,
+              "penalty": choice.penalty, "relaxation": choice.relax,
+              "metric": study.options.metric, "cv_score": choice.inner_score},
+        package_version=__version__)
 
 
 def write_csv(frame, path: Path) -> None:
@@ -25,5 +42,6 @@ def write_study(study, out, *, overwrite: bool = False, command: str = "explore"
     with output_folder(out, overwrite=overwrite, inputs=inputs) as folder:
         for name, frame in study.tables.items():
             write_csv(frame, folder / f"{name}.csv")
+        save_model(model_of(study), folder / "model.json")
         write_json(run_record(study, command), folder / "run.json")
     return Path(out)

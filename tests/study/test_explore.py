@@ -90,3 +90,14 @@ def test_same_seed_same_tables_on_a_dask_cluster(local_run):
         with distributed.Client(cluster) as client:
             on_cluster = explore(_table(), OPTIONS, backend=Backend(cluster=client))
     _same_tables(local_run, on_cluster)
+
+
+def test_model_file_predicts_what_the_run_reported(local_run, tmp_path):
+    from pathfinder import load_model
+    folder = write_study(local_run, tmp_path / "run")
+    model = load_model(folder / "model.json")
+    predicted = model.predict(_table())
+    sites = pd.read_csv(folder / "sites.csv")
+    # sites.csv holds the fitted values of the suggested model for the rows used
+    assert np.allclose(predicted.prediction.to_numpy()[sites.row - 1], sites.fitted, rtol=1e-9)
+    assert model.document["pick"]["method"] == local_run.chosen.method
