@@ -1,0 +1,1 @@
+"""Checks on the predictors themselves, made before or beside any model fit."""
