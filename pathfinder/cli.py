@@ -156,6 +156,22 @@ def build_parser() -> argparse.ArgumentParser:
     _add_output_options(demo, default_out=DEMO_FOLDER)
     demo.set_defaults(run=run_demo)
 
+    screen = commands.add_parser(
+        "screen", help="check a table and show which covariates move together",
+        description="Fast checks before any model: missing values, ranges, correlation clusters "
+                    "and variance inflation factors of every predictor.",
+        epilog="example:\n  pathfinder screen sites.csv --response present --exclude site_id --out checks",
+        formatter_class=argparse.RawDescriptionHelpFormatter)
+    _add_table_options(screen)
+    screen.add_argument("--threshold", type=float, default=0.7, metavar="R",
+                        help="|r| at which covariates count as moving together (default 0.7)")
+    screen.add_argument("--out", metavar="DIR", help="also write the tables as CSV to this folder")
+    screen.add_argument("--overwrite", action="store_true", help="replace a non-empty output folder")
+    screen.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    screen.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    screen.add_argument("--debug", action="store_true", help="show the full traceback of an internal fault")
+    screen.set_defaults(run=run_screen)
+
     predict = commands.add_parser(
         "predict", help="predict at new sites from a model file",
         description="Predict at the sites of a table with a model.json written by explore, "
@@ -234,6 +250,37 @@ def run_demo(args) -> int:
     with as_file(files(examples) / examples.DEMO_CSV) as table:
         study = explore(table, options, backend=_backend(args), progress=_progress(args))
     return _finish(study, args, command="demo")
+
+
+def run_screen(args) -> int:
+    from .data.intake import read_table
+    from .outputs.folder import check_target, output_folder
+    from .outputs.write import write_csv
+    from .report.terminal import print_screen
+    from .screen import screen
+    if args.data is None or not args.response:
+        raise InputError("give the table and the response: pathfinder screen DATA --response COL")
+    if args.out:
+        check_target(args.out, overwrite=args.overwrite, inputs=[args.data])
+    frame, _ = read_table(Path(args.data), decimal=args.decimal, delimiter=args.delimiter)
+    result = screen(frame, response=args.response, threshold=args.threshold,
+                    family=args.family or "auto", predictors=args.predictors,
+                    exclude=list(args.exclude or ()), categorical=list(args.categorical or ()),
+                    effort=args.effort, offset=args.offset, weights=args.weights,
+                    coords=list(args.coords) if args.coords else None, groups=args.groups,
+                    missing=args.missing or "drop")
+    if args.out:
+        with output_folder(args.out, overwrite=args.overwrite, inputs=[args.data]) as folder:
+            for name, table in result.tables.items():
+                write_csv(table, folder / f"{name}.csv")
+    if args.json:
+        print(json.dumps({"terms": int(len(result.terms)),
+                          "clusters": int(result.terms.cluster.nunique()),
+                          "high_vif": result.terms.term[result.terms.vif > 10].tolist(),
+                          "warnings": list(result.survey.warnings)}))
+    elif not args.quiet:
+        print_screen(result)
+    return 0
 
 
 def run_predict(args) -> int:

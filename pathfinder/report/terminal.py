@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import sys
 
+import numpy as np
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 from rich.table import Table
@@ -76,3 +77,29 @@ def print_summary(study, out, console: Console | None = None) -> None:
         for message in study.warnings:
             console.print(f"  - {message}")
     console.print(f"results written to [bold]{out}[/bold]")
+
+
+def print_screen(result, console: Console | None = None) -> None:
+    """The screen as rich tables: terms grouped by correlation cluster, then strong pairs."""
+    console = console or Console()
+    survey = result.survey
+    console.print(f"[bold]{survey.response_name}[/bold]: {survey.family_reason}")
+    console.print(f"rows usable {survey.n} of {survey.n_read}; {len(result.terms)} terms")
+    table = Table(title=f"terms, grouped where |r| >= {result.threshold:g}", title_justify="left")
+    for column in ("cluster", "term", "min", "max", "mean", "VIF"):
+        table.add_column(column, justify="left" if column == "term" else "right")
+    sizes = result.terms.cluster.value_counts()
+    for _, row in result.terms.sort_values(["cluster", "term"]).iterrows():
+        shared = sizes[row.cluster] > 1
+        vif = f"{row.vif:.1f}" if np.isfinite(row.vif) else "inf"
+        table.add_row(str(row.cluster) if shared else "", row.term, f"{row['min']:.4g}",
+                      f"{row['max']:.4g}", f"{row['mean']:.4g}",
+                      f"[bold]{vif}[/bold]" if row.vif > 10 else vif)
+    console.print(table)
+    strong = result.correlations[result.correlations.r.abs() >= result.threshold]
+    if len(strong):
+        console.print(f"{len(strong)} pairs with |r| >= {result.threshold:g}, strongest first:")
+        for _, row in strong.reindex(strong.r.abs().sort_values(ascending=False).index).head(15).iterrows():
+            console.print(f"  {row.term_a} ~ {row.term_b}: r = {row.r:+.2f}")
+    for message in survey.warnings:
+        console.print(f"[yellow]warning[/yellow]: {message}")
