@@ -1,0 +1,59 @@
+"""Memory: a path never copies X more than once, and a fold never copies it whole.
+
+Measured with tracemalloc (numpy reports its allocations to it). The
+documented budget: one standardised copy of X for binomial and Poisson
+paths, none for Gaussian paths with uniform weights, and for a fit on a
+subset of rows at most one copy of that subset.
+"""
+
+import tracemalloc
+
+import numpy as np
+import pytest
+
+from pathfinder import fit_path
+from pathfinder.choose.cv import Problem
+
+N, P = 200_000, 50
+
+
+@pytest.fixture(scope="module")
+def data():
+    rng = np.random.default_rng(0)
+    X = np.empty((N, P), order="F")
+    for j in range(P):
+        X[:, j] = rng.standard_normal(N)
+    eta = X[:, :4] @ np.array([0.5, -0.4, 0.3, 0.2])
+    y = (rng.random(N) < 1 / (1 + np.exp(-eta))).astype(float)
+    fit_path(X[:500], y[:500], family="binomial", n_penalties=3)   # compile outside the measurement
+    return X, y
+
+
+def _peak(fn):
+    tracemalloc.start()
+    try:
+        fn()
+        return tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+
+
+def test_binomial_path_holds_at_most_one_copy_of_x(data):
+    X, y = data
+    peak = _peak(lambda: fit_path(X, y, family="binomial", n_penalties=20))
+    assert peak < 1.3 * X.nbytes          # one standardised copy plus vectors, never two
+    assert peak > 0.9 * X.nbytes          # ... and the copy is really made (the check can fail)
+
+
+def test_gaussian_path_with_uniform_weights_copies_nothing_big(data):
+    X, y = data
+    peak = _peak(lambda: fit_path(X, X[:, 0] + y, n_penalties=20))
+    assert peak < 0.3 * X.nbytes          # no n x n matrix, no copy of X
+
+
+def test_a_fold_fit_copies_only_its_own_rows(data):
+    X, y = data
+    problem = Problem(X, y, "binomial", tuple(f"x{j}" for j in range(P)))
+    rows = np.arange(0, N, 4)             # a quarter of the rows
+    peak = _peak(lambda: problem.fit(rows=rows, n_penalties=10))
+    assert peak < 0.45 * X.nbytes
