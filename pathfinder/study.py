@@ -25,7 +25,10 @@ from .choose.cv import Problem, cross_validate
 from .choose.folds import make_folds
 from .choose.metrics import METRICS
 from .choose.nested import FoldPlan, choices, comparison_table, held_out_predictions, nested_cv, recommend
+from .choose.folds import block_of
 from .choose.relaxed import relaxed_lasso
+from .choose.selectors import StabilitySelector, SubsetSelector
+from .choose.subsets import variable_importance
 from .data.design import Design, build_design
 from .diagnostics.collinearity import correlation_clusters, correlation_matrix, variance_inflation
 from .diagnostics.response_curves import response_curves
@@ -77,6 +80,13 @@ class StudyOptions:
     relax: bool = True
     nested: bool = True
     inner_folds: int = 5
+    stability: bool = True
+    n_pairs: int = 50
+    stability_threshold: float | None = None
+    pfer: float | None = None
+    nested_pairs: int = 25
+    subsets: bool = True
+    subset_budget: int = 50_000
     seed: int = 1
 
     def __post_init__(self):
@@ -96,6 +106,14 @@ class StudyOptions:
             raise InputError("the block size must be a positive distance in coordinate units")
         if self.block_size is not None and not self.coords:
             raise InputError("a block size needs the site coordinates: add --coords XCOL,YCOL")
+        if int(self.n_pairs) < 2 or int(self.nested_pairs) < 2:
+            raise InputError("stability selection needs at least 2 pairs of half samples")
+        if self.stability_threshold is not None and self.pfer is not None:
+            raise InputError("give either a stability threshold or a target error rate (pfer), not both")
+        if self.stability_threshold is not None and not 0.5 < float(self.stability_threshold) <= 1:
+            raise InputError("the stability threshold must lie above 0.5 and at most 1 (e.g. 0.75)")
+        if int(self.subset_budget) < 1:
+            raise InputError("the subset budget must be a positive number of models")
         if self.metric not in METRICS:
             raise InputError(f"unknown metric {self.metric!r}: use one of {', '.join(METRICS)}")
 
@@ -121,6 +139,7 @@ class Study:
     backend: str
     warnings: tuple = field(default=())
     notes: tuple = field(default=())
+    stability: object = None
 
     @property
     def fits(self) -> dict:
@@ -215,13 +234,41 @@ def explore(data, options: StudyOptions, *, backend: Backend | None = None, prog
                 total=len(splits))
         criteria = stages.run("information criteria", lambda _: _criteria_table(cv.fits, problem))
         full_choices = choices(cv, relaxed)
+        extra_tables, selectors, stability = {}, [], None
+        if options.stability:
+            selector = StabilitySelector(
+                n_pairs=int(options.n_pairs), threshold=options.stability_threshold, pfer=options.pfer,
+                mix=cv.best_mix if cv.best_mix > 0 else 1.0,
+                strata=survey.response if survey.family == "binomial" else None,
+                units=_sampling_units(survey, options),
+                term_groups=tuple(t.group for t in design.terms))
+            stability, made = stages.run("stability selection", lambda tick: selector.run(
+                problem, None, options.seed, run=runner(tick)), total=int(options.n_pairs))
+            full_choices += made
+            extra_tables["stability"] = stability.table()
+            extra_tables["stability_path"] = stability.path_table()
+            selectors.append(StabilitySelector(
+                n_pairs=int(options.nested_pairs), threshold=options.stability_threshold,
+                pfer=options.pfer, mix=selector.mix, strata=selector.strata, units=selector.units,
+                term_groups=selector.term_groups))
+        if options.subsets:
+            chooser = SubsetSelector(budget=int(options.subset_budget))
+            search, steps, made = stages.run("subset search", lambda _: chooser.run(problem, None))
+            full_choices += made
+            extra_tables["stepwise"] = steps.steps
+            if search is not None:
+                table = search.akaike("aicc")
+                extra_tables["subsets"] = table
+                importance = variable_importance(table, problem.names)
+                extra_tables["importance"] = importance.rename("importance").rename_axis("term").reset_index()
+            selectors.append(chooser)
         outer = None
         if options.nested:
             outer = stages.run("nested cross-validation", lambda tick: nested_cv(
                 problem, folds.splits(0), plan, seed=options.seed, inner_k=int(options.inner_folds),
                 mixes=options.mixes, metric=options.metric, n_penalties=int(options.n_penalties),
-                penalty_ratio=options.penalty_ratio, relax=options.relax, run=runner(tick)),
-                total=folds.n_folds)
+                penalty_ratio=options.penalty_ratio, relax=options.relax, selectors=selectors,
+                run=runner(tick)), total=folds.n_folds)
     fit_warnings = tuple(dict.fromkeys(str(w.message) for w in caught
                                        if issubclass(w.category, FitWarning)))
 
@@ -234,6 +281,7 @@ def explore(data, options: StudyOptions, *, backend: Backend | None = None, prog
         "criteria": criteria,
         "folds": tables.folds_table(folds, survey.rows),
         "correlations": tables.correlations_table(design),
+        **extra_tables,
     }
     comparison = None
     if outer is not None:
@@ -244,11 +292,23 @@ def explore(data, options: StudyOptions, *, backend: Backend | None = None, prog
     result_tables.update(stages.run("describing the chosen model", lambda _: _chosen_tables(
         chosen, problem, survey, design, folds, cv, splits)))
     notes = tuple(survey.notes) + tuple(folds.notes) + tuple(cv.notes)
+    if stability is not None:
+        notes += (stability.error_control,) + tuple(stability.notes)
     return Study(
         options=options, survey=survey, design=design, table_info=info, folds=folds, cv=cv,
         relaxed=relaxed, choices=full_choices, chosen=chosen, tables=result_tables, timings=stages.timings,
         backend=describe(backend), warnings=tuple(survey.warnings) + fit_warnings, notes=notes,
+        stability=stability,
     )
+
+
+def _sampling_units(survey, options):
+    """What subsamples keep whole: spatial blocks when the folds use them, else groups."""
+    if options.block_size and survey.coords is not None:
+        return block_of(survey.coords, options.block_size)
+    if survey.groups is not None:
+        return pd.factorize(pd.Series(survey.groups).astype(str))[0]
+    return None
 
 
 def _criteria_table(fits: dict, problem: Problem) -> pd.DataFrame:
@@ -273,7 +333,8 @@ def _chosen_tables(chosen, problem, survey, design, folds, cv, splits) -> dict:
     chosen_table = chosen_table[chosen_table.estimate != 0].reset_index(drop=True)
     fitted = fam.inverse_link(problem.linear_predictor(
         np.array([chosen.intercept]), chosen.coef[None, :], np.arange(problem.n))[:, 0])
-    held = held_out_predictions(problem, folds.splits(0), chosen, cv.fits[chosen.mix].penalties)
+    grid = cv.fits[chosen.mix].penalties if chosen.mix in cv.fits else None
+    held = held_out_predictions(problem, folds.splits(0), chosen, grid)
     sites = pd.DataFrame({"row": survey.rows + 1})
     if survey.coords is not None:
         sites["x"], sites["y"] = survey.coords[:, 0], survey.coords[:, 1]

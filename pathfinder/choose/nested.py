@@ -109,6 +109,7 @@ class OuterTask:
     n_penalties: int
     penalty_ratio: float | None
     relax: bool
+    selectors: tuple = ()
 
 
 def run_outer_fold(problem: Problem, task: OuterTask) -> list[dict]:
@@ -124,7 +125,10 @@ def run_outer_fold(problem: Problem, task: OuterTask) -> list[dict]:
     fam = get_family(problem.family)
     y, w = problem.y[task.test], problem.part(problem.weights, task.test)
     rows = []
-    for choice in choices(cv, relaxed):
+    made = choices(cv, relaxed)
+    for selector in task.selectors:
+        made += selector.choose(problem, task.train, task.seed)
+    for choice in made:
         eta = problem.linear_predictor(np.array([choice.intercept]), choice.coef[None, :], task.test)
         outer = score(task.metric, y, fam.inverse_link(eta[:, 0]), fam.name, w)
         rows.append({"fold": task.fold, "method": choice.method, "rule": choice.rule,
@@ -142,16 +146,18 @@ def _all_splits(folds):
 
 
 def nested_cv(problem: Problem, outer_splits, plan: FoldPlan, *, seed, inner_k=5, mixes=(1.0,),
-              metric="deviance", n_penalties=100, penalty_ratio=None, relax=True,
+              metric="deviance", n_penalties=100, penalty_ratio=None, relax=True, selectors=(),
               run=None) -> pd.DataFrame:
     """Outer-fold scores of every method and rule: one row per (outer fold, method, rule).
 
     Each outer fold gets its own seed for its inner folds (spawned from
     ``seed``), so the result does not depend on where the folds ran.
+    ``selectors`` (see :mod:`pathfinder.choose.selectors`) add methods that
+    are not a penalty pick, each redone on every outer training set.
     """
     seeds = [int(s.generate_state(1)[0]) for s in np.random.SeedSequence(seed).spawn(len(outer_splits))]
     tasks = [OuterTask(k, train, test, seeds[k], plan, inner_k, tuple(float(m) for m in mixes), metric,
-                       n_penalties, penalty_ratio, relax)
+                       n_penalties, penalty_ratio, relax, tuple(selectors))
              for k, (train, test) in enumerate(outer_splits)]
     results = (run or (lambda fn, ts, shared: [fn(shared, t) for t in ts]))(run_outer_fold, tasks, problem)
     return pd.DataFrame([row for rows in results for row in rows])
@@ -223,13 +229,20 @@ def held_out_predictions(problem: Problem, splits, choice: Choice, grid) -> np.n
     The penalised methods are refitted at the chosen penalty on each fold's
     training rows (on the full grid down to that penalty, as the path was
     fitted); the relaxed lasso is blended with its refit at the chosen
-    relaxation.
+    relaxation. Methods without a penalty (stability selection, subsets)
+    refit their chosen terms without the fold.
     """
     from .relaxed import refit
     fam = get_family(problem.family)
     out = np.full(problem.n, np.nan)
-    steps = grid[grid >= choice.penalty * (1 - 1e-12)]
+    penalised = np.isfinite(choice.penalty)
+    steps = grid[grid >= choice.penalty * (1 - 1e-12)] if penalised else None
     for train, test in splits:
+        if not penalised:
+            b0, b = refit(problem, train, np.flatnonzero(choice.coef))
+            eta = problem.linear_predictor(np.array([b0]), b[None, :], test)[:, 0]
+            out[test] = fam.inverse_link(eta)
+            continue
         fit = problem.fit(rows=train, mix=choice.mix, penalties=steps, tol=1e-5)
         b0, b = fit.intercept[-1], fit.coef[-1]
         if choice.relax is not None:

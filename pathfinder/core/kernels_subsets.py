@@ -51,7 +51,7 @@ _MAX_HALVINGS = 40
 
 # ---- keeping the best subsets of each size -------------------------------------
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _better(score_a, members_a, score_b, members_b, size):
     """Is subset a ranked above subset b (same size)? Larger score, then earlier order."""
     if score_a != score_b:
@@ -72,9 +72,14 @@ def _find_worst(size, base, filled, best_score, best_members):
 
 
 @njit(cache=True)
-def _record(size, score, members, beta, slot_start, cap, filled, worst,
+def _record(size, score, members, beta, slot_start, cap, filled, worst, floor,
             best_score, best_members, best_coef):
-    """Offer one subset to the slots of its size; keep it if it is among the best."""
+    """Offer one subset to the slots of its size; keep it if it is among the best.
+
+    ``floor[size]`` is the score of the worst subset kept once the slots of
+    that size are full (minus infinity before): callers skip this call for a
+    score below it, which is nearly every subset of a large search.
+    """
     if score != score:  # NaN never wins
         score = -np.inf
     c = cap[size]
@@ -95,32 +100,36 @@ def _record(size, score, members, beta, slot_start, cap, filled, worst,
         best_coef[slot, t] = beta[t]
     if filled[size] == c:
         worst[size] = _find_worst(size, base, c, best_score, best_members)
+        floor[size] = best_score[worst[size]]
 
 
 # ---- least squares: elimination on the cross-product matrix --------------------
 
-@njit(cache=True)
-def _pivot_rss(M, j, yv, diag0, alias_tol):
-    """RSS after adding term j to the model whose Schur complement is M; and is j aliased?"""
-    piv = M[j, j]
+@njit(cache=True, inline="always")
+def _pivot_rss(M, d, j, yv, diag0, alias_tol):
+    """RSS after adding term j to the model whose Schur complement is M[d]; and is j aliased?
+
+    Only the upper triangle (row index <= column index) of M[d] is kept.
+    """
+    piv = M[d, j, j]
     if not (piv > alias_tol * diag0[j]):
-        return M[yv, yv], True
-    return M[yv, yv] - (M[yv, j] / piv) * M[j, yv], False
+        return M[d, yv, yv], True
+    return M[d, yv, yv] - (M[d, j, yv] / piv) * M[d, j, yv], False
 
 
-@njit(cache=True)
-def _eliminate(Mi, Mo, j, yv, aliased):
-    """Schur complement of pivot j, on the indices above j and the response only."""
+@njit(cache=True, inline="always")
+def _eliminate(M, d, j, yv, aliased):
+    """M[d + 1]: Schur complement of pivot j in M[d], on the indices above j and the response."""
     if aliased:
         for a in range(j + 1, yv + 1):
-            for b in range(j + 1, yv + 1):
-                Mo[a, b] = Mi[a, b]
+            for b in range(a, yv + 1):
+                M[d + 1, a, b] = M[d, a, b]
         return
-    piv = Mi[j, j]
+    piv = M[d, j, j]
     for a in range(j + 1, yv + 1):
-        f = Mi[a, j] / piv
-        for b in range(j + 1, yv + 1):
-            Mo[a, b] = Mi[a, b] - f * Mi[j, b]
+        f = M[d, j, a] / piv
+        for b in range(a, yv + 1):
+            M[d + 1, a, b] = M[d, a, b] - f * M[d, j, b]
 
 
 @njit(cache=True)
@@ -145,6 +154,7 @@ def gaussian_search(A, start, count, max_size, alias_tol, slot_start, cap,
     nxt = np.zeros(depth_max + 1, dtype=np.int64)
     filled = np.zeros(max_size + 1, dtype=np.int64)
     worst = np.zeros(max_size + 1, dtype=np.int64)
+    floor = np.full(max_size + 1, -np.inf)
     no_coef = np.empty((0, 0))
     no_beta = np.empty(0)
 
@@ -154,12 +164,12 @@ def gaussian_search(A, start, count, max_size, alias_tol, slot_start, cap,
     for i in range(d):
         j = start[i]
         members[i] = j
-        rss, aliased = _pivot_rss(M[i], j, yv, diag0, alias_tol)
+        rss, aliased = _pivot_rss(M, i, j, yv, diag0, alias_tol)
         if i + 1 < max_size and j + 1 < p:
-            _eliminate(M[i], M[i + 1], j, yv, aliased)
+            _eliminate(M, i, j, yv, aliased)
         nxt[i] = j + 1
     nxt[d] = start[d - 1] + 1 if d > 0 else 0
-    _record(d, -rss, members, no_beta, slot_start, cap, filled, worst,
+    _record(d, -rss, members, no_beta, slot_start, cap, filled, worst, floor,
             best_score, best_members, no_coef)
     done = 1
     while done < count:
@@ -170,13 +180,14 @@ def gaussian_search(A, start, count, max_size, alias_tol, slot_start, cap,
         j = nxt[d]
         nxt[d] = j + 1
         members[d] = j
-        rss, aliased = _pivot_rss(M[d], j, yv, diag0, alias_tol)
+        rss, aliased = _pivot_rss(M, d, j, yv, diag0, alias_tol)
         if d + 1 < max_size and j + 1 < p:
-            _eliminate(M[d], M[d + 1], j, yv, aliased)
+            _eliminate(M, d, j, yv, aliased)
         d += 1
         nxt[d] = j + 1
-        _record(d, -rss, members, no_beta, slot_start, cap, filled, worst,
-                best_score, best_members, no_coef)
+        if -rss >= floor[d]:
+            _record(d, -rss, members, no_beta, slot_start, cap, filled, worst, floor,
+                    best_score, best_members, no_coef)
         done += 1
     return done
 
@@ -317,23 +328,65 @@ def _solve(H, g, q, L, step, alias_tol):
 
 
 @njit(cache=True)
+def solve_aliased(H, g, alias_tol):
+    """``(x, rank)``: the solution of ``H x = g`` with aliased columns held at zero.
+
+    ``H`` is a symmetric positive semi-definite cross-product matrix; a column
+    whose residual variance given the earlier ones is below ``alias_tol`` of
+    its own is aliased, the same rule as the searches.
+    """
+    q = H.shape[0]
+    L = np.zeros((q, q))
+    x = np.empty(q)
+    _solve(H, g, q, L, x, alias_tol)
+    rank = 0
+    for c in range(q):
+        if L[c, c] != 0.0:
+            rank += 1
+    return x, rank
+
+
+# What the work buffers hold when Newton's method returns.
+_FRESH, _UNTOUCHED, _STALE = 1, 0, -1
+
+
+@njit(cache=True)
 def _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol, max_iter, alias_tol,
-            work, small, H_new, L):
+            work, small, H_new, L, min_steps):
     """Newton's method from ``beta`` where ``f, g, H`` are already known; updates them in place.
 
-    Stops when the Newton decrement ``g' H^-1 g / 2`` (the predicted gain in
-    log-likelihood) is below ``tol * (|f| + 1)``. Each step is halved until the
-    objective does not fall. Returns ``(f, converged)``.
+    Stops when the Newton decrement ``g' H^-1 g / 2`` (the gain in
+    log-likelihood the next step promises) is below ``tol * (|f| + 1)``, and
+    then takes that last step without evaluating it: near the optimum
+    Newton's method squares the error, so the coefficients gain many digits
+    for free. The objective returned is the quadratic model's prediction
+    ``f + decrement`` at the new point (its error is of third order in the
+    step), and ``g`` becomes the linear prediction ``g - H step`` there.
+
+    At least ``min_steps`` steps are evaluated (1 when ``f, g, H`` are
+    themselves predictions, so that every figure returned rests on an exact
+    evaluation). A step is accepted when the objective does not fall by more
+    than the tolerance, else halved.
+    Returns ``(f, converged, buffers)``: ``buffers`` says whether the working
+    weights and residuals in ``work`` are those of the last point evaluated
+    and accepted (``_FRESH``), were not touched (``_UNTOUCHED``), or hold a
+    rejected trial (``_STALE``).
     """
     q = k + 1
     trial, step, g_new = small[0], small[1], small[2]
+    buffers = _UNTOUCHED
     it = 0
     while True:
         dec = _solve(H, g, q, L, step, alias_tol)
-        if dec <= tol * (abs(f) + 1.0):
-            return f, True
+        slack = tol * (abs(f) + 1.0)
+        if dec <= slack and it >= min_steps:
+            for c in range(q):
+                beta[c] += step[c]
+                for e in range(q):
+                    g[c] -= H[c, e] * step[e]
+            return f + dec, True, buffers
         if it >= max_iter:
-            return f, False
+            return f, False, buffers
         it += 1
         t = 1.0
         accepted = False
@@ -342,13 +395,14 @@ def _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol, max_iter, alias_
             for c in range(q):
                 trial[c] = beta[c] + t * step[c]
             f_new = _pass(Xt, y, w, off, fam, members, k, trial, g_new, H_new, 0, work)
-            if f_new >= f - 1e-13 * (abs(f) + 1.0):
+            if f_new >= f - slack:
                 accepted = True
                 break
             t *= 0.5
         if not accepted:
             # No step gains: the objective is flat to rounding at beta (g, H still hold beta's).
-            return f, dec <= 1e-8 * (abs(f) + 1.0)
+            return f, dec <= 1e-6 * (abs(f) + 1.0), _STALE
+        buffers = _FRESH
         for c in range(q):
             beta[c] = trial[c]
             g[c] = g_new[c]
@@ -374,14 +428,35 @@ def fit_subset(Xt, y, w, off, fam, members, beta, tol, max_iter, alias_tol):
     H_new = np.empty((q, q))
     L = np.zeros((q, q))
     f = _pass(Xt, y, w, off, fam, members, k, beta, g, H, 0, work)
-    return _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol, max_iter, alias_tol,
-                   work, small, H_new, L)
+    f, converged, _ = _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol, max_iter,
+                              alias_tol, work, small, H_new, L, 0)
+    return f, converged
 
 
 @njit(cache=True)
-def _fit_child(Xt, y, w, off, fam, members, d, betas, gs, Hs, fs, tol, max_iter, alias_tol,
-               work, small, H_new, L):
-    """Fit the subset ``members[:d + 1]`` from its parent (depth d) with the new coefficient at 0."""
+def _keep_vectors(Xt, y, w, off, fam, members, k, beta, work, buffers, from_pass, V, R, d):
+    """Store the working weights and residuals of the subset at depth k for its children."""
+    if buffers == _FRESH or (buffers == _UNTOUCHED and from_pass):
+        V[k, :] = work[1]
+        R[k, :] = work[2]
+    elif buffers == _UNTOUCHED:
+        V[k, :] = V[d]
+        R[k, :] = R[d]
+    else:
+        _rows(Xt, y, w, off, fam, members, k, beta, work[0], V[k], R[k])
+
+
+@njit(cache=True)
+def _fit_child(Xt, y, w, off, fam, members, d, betas, gs, Hs, fs, V, R, stored, tol, max_iter,
+               alias_tol, work, small, H_new, L):
+    """Fit the subset ``members[:d + 1]`` from its parent (depth d) with the new coefficient at 0.
+
+    At that start the linear predictor is the parent's, so only the new
+    column's gradient entry and Hessian row are needed. With ``stored``
+    they come from the parent's working weights and residuals kept in
+    ``V[d], R[d]`` (no pass over the rows); otherwise from one pass that
+    recomputes them.
+    """
     k = d + 1
     beta, g, H = betas[k], gs[k], Hs[k]
     for c in range(d + 1):
@@ -390,20 +465,42 @@ def _fit_child(Xt, y, w, off, fam, members, d, betas, gs, Hs, fs, tol, max_iter,
         for e in range(d + 1):
             H[c, e] = Hs[d, c, e]
     beta[k] = 0.0
-    f = _pass(Xt, y, w, off, fam, members, k, beta, g, H, k - 1, work)
-    f, converged = _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol, max_iter,
-                           alias_tol, work, small, H_new, L)
+    if stored:
+        col = Xt[members[d]]
+        vx = work[3]
+        v, r = V[d], R[d]
+        g[k] = _dot(r, col)
+        for i in range(vx.shape[0]):
+            vx[i] = v[i] * col[i]
+        h = _sum(vx)
+        H[k, 0] = h
+        H[0, k] = h
+        for b in range(k):
+            h = _dot(vx, Xt[members[b]])
+            H[k, b + 1] = h
+            H[b + 1, k] = h
+        f = fs[d]
+    else:
+        f = _pass(Xt, y, w, off, fam, members, k, beta, g, H, k - 1, work)
+    f, converged, buffers = _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol,
+                                    max_iter, alias_tol, work, small, H_new, L,
+                                    1 if stored else 0)
     fs[k] = f
+    if stored:
+        _keep_vectors(Xt, y, w, off, fam, members, k, beta, work, buffers, False, V, R, d)
     return converged
 
 
 @njit(cache=True)
 def glm_search(Xt, y, w, off, fam, intercept_start, start, count, max_size, tol, max_iter,
-               alias_tol, slot_start, cap, best_score, best_members, best_coef):
+               alias_tol, stored, slot_start, cap, best_score, best_members, best_coef):
     """Visit ``count`` subsets from ``start``; keep the largest log-likelihood per size.
 
     ``Xt`` is (p, n), one standardised predictor per row. The standardised
     coefficients of kept subsets (intercept first) go to ``best_coef``.
+    ``stored`` keeps two vectors of length n per depth so that a child's
+    first Newton step needs no pass over the rows (set it when
+    ``2 (max_size + 1) n`` numbers fit in memory comfortably).
     Returns ``(subsets visited, fits that did not converge)``.
     """
     p, n = Xt.shape
@@ -413,6 +510,9 @@ def glm_search(Xt, y, w, off, fam, intercept_start, start, count, max_size, tol,
     gs = np.zeros((depth_max, q))
     Hs = np.zeros((depth_max, q, q))
     fs = np.zeros(depth_max)
+    kept_n = n if stored else 0
+    V = np.empty((depth_max, kept_n))
+    R = np.empty((depth_max, kept_n))
     work = np.empty((4, n))
     small = np.empty((3, q))
     H_new = np.empty((q, q))
@@ -421,25 +521,28 @@ def glm_search(Xt, y, w, off, fam, intercept_start, start, count, max_size, tol,
     nxt = np.zeros(depth_max + 1, dtype=np.int64)
     filled = np.zeros(max_size + 1, dtype=np.int64)
     worst = np.zeros(max_size + 1, dtype=np.int64)
+    floor = np.full(max_size + 1, -np.inf)
     not_converged = 0
 
     # The intercept-only model, then the parents of the first subset, as from the start.
     betas[0, 0] = intercept_start
     f = _pass(Xt, y, w, off, fam, members, 0, betas[0], gs[0], Hs[0], 0, work)
-    fs[0], converged = _newton(Xt, y, w, off, fam, members, 0, betas[0], gs[0], Hs[0], f, tol,
-                               max_iter, alias_tol, work, small, H_new, L)
+    fs[0], converged, buffers = _newton(Xt, y, w, off, fam, members, 0, betas[0], gs[0], Hs[0],
+                                        f, tol, max_iter, alias_tol, work, small, H_new, L, 0)
+    if stored:
+        _keep_vectors(Xt, y, w, off, fam, members, 0, betas[0], work, buffers, True, V, R, 0)
     d = start.shape[0]
     if d == 0 and not converged:
         not_converged += 1
     for i in range(d):
         members[i] = start[i]
-        converged = _fit_child(Xt, y, w, off, fam, members, i, betas, gs, Hs, fs, tol, max_iter,
-                               alias_tol, work, small, H_new, L)
+        converged = _fit_child(Xt, y, w, off, fam, members, i, betas, gs, Hs, fs, V, R, stored,
+                               tol, max_iter, alias_tol, work, small, H_new, L)
         nxt[i] = start[i] + 1
         if i == d - 1 and not converged:
             not_converged += 1
     nxt[d] = start[d - 1] + 1 if d > 0 else 0
-    _record(d, fs[d], members, betas[d], slot_start, cap, filled, worst,
+    _record(d, fs[d], members, betas[d], slot_start, cap, filled, worst, floor,
             best_score, best_members, best_coef)
     done = 1
     while done < count:
@@ -450,12 +553,13 @@ def glm_search(Xt, y, w, off, fam, intercept_start, start, count, max_size, tol,
         j = nxt[d]
         nxt[d] = j + 1
         members[d] = j
-        if not _fit_child(Xt, y, w, off, fam, members, d, betas, gs, Hs, fs, tol, max_iter,
-                          alias_tol, work, small, H_new, L):
+        if not _fit_child(Xt, y, w, off, fam, members, d, betas, gs, Hs, fs, V, R, stored,
+                          tol, max_iter, alias_tol, work, small, H_new, L):
             not_converged += 1
         d += 1
         nxt[d] = j + 1
-        _record(d, fs[d], members, betas[d], slot_start, cap, filled, worst,
-                best_score, best_members, best_coef)
+        if fs[d] >= floor[d]:
+            _record(d, fs[d], members, betas[d], slot_start, cap, filled, worst, floor,
+                    best_score, best_members, best_coef)
         done += 1
     return done, not_converged

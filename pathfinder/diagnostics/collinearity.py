@@ -20,7 +20,7 @@ All functions are pure: arrays in, arrays out.
 from __future__ import annotations
 
 import numpy as np
-from scipy.cluster.hierarchy import leaves_list, linkage
+from scipy.cluster.hierarchy import fcluster, leaves_list, linkage
 from scipy.spatial.distance import squareform
 
 from ..errors import InputError
@@ -105,14 +105,16 @@ def _correlations(X, weights):
 
 
 def correlation_clusters(R, threshold: float = DEFAULT_THRESHOLD) -> np.ndarray:
-    """A cluster number for every term: families linked by |r| >= threshold.
+    """A cluster number for every term: families whose members all move together.
 
-    Two terms are linked when the absolute correlation between them is at
-    least ``threshold``; a cluster is a connected set of links (single
-    linkage), so a chain a-b, b-c puts a and c together even when they are
-    only weakly correlated themselves. Clusters are numbered 1, 2, ... in the
-    order their first term appears; a term linked to nothing is a cluster of
-    its own. NaN correlations (a column without spread) are no link.
+    Complete-linkage clustering of the distance 1 - |r|, cut at
+    1 - ``threshold``: every pair of terms in a cluster has an absolute
+    correlation of at least ``threshold``, so the members of a cluster can
+    stand in for one another. (Single linkage would chain a-b and b-c into one
+    family even when a and c hardly move together; on survey covariates that
+    makes one giant cluster.) Clusters are numbered 1, 2, ... in the order
+    their first term appears; a term close to no other is a cluster of its
+    own. NaN correlations (a column without spread) count as 0.
     """
     R = _square(R)
     threshold = float(threshold)
@@ -120,22 +122,15 @@ def correlation_clusters(R, threshold: float = DEFAULT_THRESHOLD) -> np.ndarray:
         raise InputError(
             f"the correlation threshold must lie above 0 and at most 1, got {threshold:g}; "
             f"{DEFAULT_THRESHOLD} is a common working value")
-    linked = np.abs(np.nan_to_num(R, nan=0.0)) >= threshold
     p = R.shape[0]
-    cluster = np.zeros(p, dtype=np.int64)
-    next_id = 0
-    for start in range(p):
-        if cluster[start]:
-            continue
-        next_id += 1
-        cluster[start] = next_id
-        waiting = [start]
-        while waiting:
-            j = waiting.pop()
-            for k in np.flatnonzero(linked[j] & (cluster == 0)):
-                cluster[k] = next_id
-                waiting.append(int(k))
-    return cluster
+    if p == 1:
+        return np.ones(1, dtype=np.int64)
+    distance = 1.0 - np.abs(np.nan_to_num(R, nan=0.0))
+    np.fill_diagonal(distance, 0.0)
+    tree = linkage(squareform(distance, checks=False), method="complete")
+    labels = fcluster(tree, t=1.0 - threshold + 1e-12, criterion="distance")
+    renumber = {label: k + 1 for k, label in enumerate(dict.fromkeys(labels.tolist()))}
+    return np.array([renumber[label] for label in labels], dtype=np.int64)
 
 
 def variance_inflation(X, weights=None) -> np.ndarray:

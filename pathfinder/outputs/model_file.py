@@ -187,18 +187,28 @@ def _pick_record(pick: dict) -> dict:
     if missing:
         raise ValueError(f"pick lacks {', '.join(missing)}")
     out = {"method": str(pick["method"]), "rule": str(pick["rule"]),
-           "mix": float(pick["mix"]), "penalty": float(pick["penalty"]),
+           "mix": _number_or_none(pick["mix"]), "penalty": _number_or_none(pick["penalty"]),
            "relaxation": None if pick.get("relaxation") is None else float(pick["relaxation"])}
     for key, value in pick.items():
         if key in out:
             continue
         if isinstance(value, np.generic):
             value = value.item()
+        if isinstance(value, float) and not np.isfinite(value):
+            value = None
         if not (value is None or isinstance(value, (str, bool, int, float))):
             raise ValueError(f"pick field {key!r} must be a plain value, "
                              f"not {type(value).__name__}")
         out[str(key)] = value
     return out
+
+
+def _number_or_none(value):
+    """A finite number, or None for a method without it (subsets have no penalty)."""
+    if value is None:
+        return None
+    value = float(value)
+    return value if np.isfinite(value) else None
 
 
 def _prediction_meaning(family, response, labels, offset_rule) -> str:
@@ -484,8 +494,10 @@ def _check_training(training: dict, terms: list, reference: dict, c: _Checker) -
 def _check_pick(pick: dict, c: _Checker) -> None:
     c.text(c.get(pick, "method", "pick.method"), "pick.method")
     c.text(c.get(pick, "rule", "pick.rule"), "pick.rule")
-    c.number(c.get(pick, "mix", "pick.mix"), "pick.mix")
-    c.number(c.get(pick, "penalty", "pick.penalty"), "pick.penalty")
+    for key in ("mix", "penalty"):   # null for methods without a penalty
+        value = c.get(pick, key, f"pick.{key}")
+        if value is not None:
+            c.number(value, f"pick.{key}")
     relaxation = pick.get("relaxation")
     if relaxation is not None:
         c.number(relaxation, "pick.relaxation")

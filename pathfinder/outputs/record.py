@@ -46,6 +46,13 @@ def run_record(study, command: str) -> dict:
         "folds": {"scheme": study.folds.scheme, "count": study.folds.n_folds,
                   "repeats": study.folds.n_repeats},
         "backend": study.backend,
+        "stability": None if study.stability is None else {
+            "q": int(study.stability.q), "threshold": float(study.stability.threshold),
+            "pfer_bound": float(study.stability.pfer_bound), "n_pairs": int(study.stability.n_pairs),
+            "mix": float(study.stability.mix), "error_control": study.stability.error_control,
+            "stable_terms": list(study.stability.stable_terms)},
+        "chosen": {"method": study.chosen.method, "rule": study.chosen.rule,
+                   "terms": list(study.chosen.terms)},
         "notes": list(study.notes),
         "warnings": list(study.warnings),
         "timings_seconds": {k: round(v, 3) for k, v in study.timings.items()},

@@ -81,30 +81,33 @@ def _random_correlations(seed, p):
 
 
 @given(seed=st.integers(0, 10_000), p=st.integers(1, 25), threshold=st.floats(0.05, 1.0))
-def test_clusters_are_the_connected_components(seed, p, threshold):
+def test_every_pair_in_a_cluster_moves_together(seed, p, threshold):
     R = _random_correlations(seed, p)
     ids = correlation_clusters(R, threshold)
-    # Reference: scipy.sparse.csgraph.connected_components of the graph |r| >= threshold.
-    n_ref, ref = connected_components(csr_matrix(np.abs(R) >= threshold), directed=False)
-    assert ids.max() == n_ref
-    same_ours = ids[:, None] == ids[None, :]
-    same_ref = ref[:, None] == ref[None, :]
-    assert np.array_equal(same_ours, same_ref)
-    # Numbered 1.. in order of first appearance.
+    # Complete linkage (a standard hierarchical-clustering rule): within a
+    # cluster every pair has |r| >= threshold ...
+    same = ids[:, None] == ids[None, :]
+    assert np.all(np.abs(np.nan_to_num(R))[same] >= threshold - 1e-9)
+    # ... so clusters never exceed the connected components of |r| >= threshold
+    # (scipy.sparse.csgraph.connected_components, the single-linkage bound).
+    _, ref = connected_components(csr_matrix(np.abs(R) >= threshold), directed=False)
+    assert np.all((ref[:, None] == ref[None, :])[same])
     first_seen = list(dict.fromkeys(ids.tolist()))
-    assert first_seen == list(range(1, n_ref + 1))
+    assert first_seen == list(range(1, ids.max() + 1))
 
 
-def test_threshold_is_respected_and_chains_join():
-    # a-b and b-c at 0.8, a-c at 0.64: single linkage joins all three at 0.7.
-    R = np.array([[1.0, 0.8, 0.64, 0.1],
-                  [0.8, 1.0, 0.8, 0.0],
+def test_threshold_is_respected_and_chains_do_not_join():
+    # a-b at 0.85 and b-c at 0.8, but a-c only 0.64: a and c do not stand in
+    # for each other, so c is not in a's cluster at 0.7.
+    R = np.array([[1.0, 0.85, 0.64, 0.1],
+                  [0.85, 1.0, 0.8, 0.0],
                   [0.64, 0.8, 1.0, -0.69],
                   [0.1, 0.0, -0.69, 1.0]])
-    assert correlation_clusters(R, 0.7).tolist() == [1, 1, 1, 2]
-    assert correlation_clusters(R, 0.8).tolist() == [1, 1, 1, 2]      # |r| equal to the threshold links
-    assert correlation_clusters(R, 0.81).tolist() == [1, 2, 3, 4]
-    assert correlation_clusters(R, 0.69).tolist() == [1, 1, 1, 1]     # a negative r links by its size
+    assert correlation_clusters(R, 0.7).tolist() == [1, 1, 2, 3]
+    assert correlation_clusters(R, 0.85).tolist() == [1, 1, 2, 3]     # |r| equal to the threshold links
+    assert correlation_clusters(R, 0.86).tolist() == [1, 2, 3, 4]
+    assert correlation_clusters(R, 0.6).tolist() == [1, 1, 2, 2]      # c joins d, its closer partner
+    assert correlation_clusters(R, 0.05).tolist() == [1, 1, 2, 2]     # b and d never move together
     with pytest.raises(InputError, match="threshold"):
         correlation_clusters(R, 0.0)
 

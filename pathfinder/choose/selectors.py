@@ -1,0 +1,116 @@
+"""Choosers that are not a penalty pick: stability selection and subset searches.
+
+Each selector chooses a model from some rows of a problem and returns plain
+:class:`~pathfinder.choose.nested.Choice` objects, so the comparison treats
+them exactly like the penalised methods: on the full data for the reported
+terms, and redone from scratch inside each outer training set for the honest
+outer error.
+
+* ``stability selection / refit``: the terms stability selection calls stable
+  (Meinshausen & Buhlmann 2010; Shah & Samworth 2013), refitted without
+  penalty.
+* ``best subset / aicc`` and ``/ bic``: the best subset by AICc and by BIC
+  (Furnival & Wilson 1974 search; Hurvich & Tsai 1989).
+* ``stepwise / aic``: stepwise selection in both directions by AIC.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..core.glm import fit_glm
+from .cv import Problem
+from .nested import Choice
+from .stability import stability_selection
+from .subsets import best_subsets, stepwise
+
+REFIT_RIDGE = 1e-6
+
+
+def refit_terms(problem: Problem, rows, active) -> tuple[float, np.ndarray]:
+    """Unpenalised GLM (a whisker of ridge) on the columns ``active`` and the rows ``rows``."""
+    coef = np.zeros(problem.X.shape[1])
+    fit = fit_glm(problem.X[np.ix_(rows, active)], problem.y[rows], problem.family,
+                  offset=problem.part(problem.offset, rows), weights=problem.part(problem.weights, rows),
+                  ridge=REFIT_RIDGE)
+    coef[active] = fit.coef
+    return fit.intercept, coef
+
+
+def largest_search_size(p: int, budget: int) -> int:
+    """The largest subset size whose exhaustive search fits within ``budget`` models."""
+    total, size = 1, 0
+    while size < p and total + math.comb(p, size + 1) <= budget:
+        size += 1
+        total += math.comb(p, size)
+    return size
+
+
+@dataclass(frozen=True, eq=False)
+class StabilitySelector:
+    """Stability selection followed by a refit on the stable terms."""
+
+    n_pairs: int = 50
+    threshold: float | None = None
+    pfer: float | None = None
+    mix: float = 1.0
+    strata: np.ndarray | None = None       # presence (0/1) for binomial, over all rows
+    units: np.ndarray | None = None        # groups or spatial blocks, over all rows
+    term_groups: tuple | None = None
+
+    def run(self, problem: Problem, rows, seed, run=None):
+        """(stability result, choices) for the sub-problem of ``rows``."""
+        sub = problem if rows is None else subproblem(problem, rows)
+        pick = (lambda v: None if v is None or rows is None else v[rows])
+        result = stability_selection(
+            sub, mix=self.mix, n_pairs=self.n_pairs, threshold=self.threshold, pfer=self.pfer,
+            strata=self.strata if rows is None else pick(self.strata),
+            units=self.units if rows is None else pick(self.units),
+            term_groups=list(self.term_groups) if self.term_groups else None, seed=seed, run=run)
+        active = np.flatnonzero(result.stable)
+        b0, b = refit_terms(sub, np.arange(sub.n), active)
+        return result, [Choice("stability selection", "refit", self.mix, float("nan"), b0, b,
+                               float("nan"), problem.names)]
+
+    def choose(self, problem: Problem, rows, seed):
+        return self.run(problem, rows, seed)[1]
+
+
+@dataclass(frozen=True, eq=False)
+class SubsetSelector:
+    """Best subset by AICc and BIC (when the search fits the budget) and stepwise by AIC."""
+
+    budget: int = 50_000
+
+    def max_size(self, p: int) -> int:
+        return largest_search_size(p, self.budget)
+
+    def run(self, problem: Problem, rows, run=None):
+        """(subset search or None, stepwise result, choices) on ``rows``."""
+        base = np.arange(problem.n) if rows is None else rows
+        out, search = [], None
+        size = self.max_size(problem.X.shape[1])
+        if size >= 1:
+            search = best_subsets(problem, max_size=size, rows=base, max_models=self.budget, run=run)
+            for criterion in ("aicc", "bic"):
+                b0, b, _ = search.best(criterion)
+                out.append(Choice("best subset", criterion, float("nan"), float("nan"), b0, b,
+                                  float("nan"), problem.names))
+        steps = stepwise(problem, direction="both", criterion="aic", rows=base)
+        out.append(Choice("stepwise", "aic", float("nan"), float("nan"), float(steps.intercept),
+                          np.asarray(steps.coef, dtype=float), float("nan"), problem.names))
+        return search, steps, out
+
+    def choose(self, problem: Problem, rows, seed):
+        return self.run(problem, rows)[2]
+
+
+def subproblem(problem: Problem, rows) -> Problem:
+    """The problem restricted to ``rows`` (a copy of those rows)."""
+    part = problem.part
+    return Problem(np.asfortranarray(problem.X[rows]), problem.y[rows], problem.family, problem.names,
+                   offset=part(problem.offset, rows), weights=part(problem.weights, rows),
+                   standardize=problem.standardize, term_weights=problem.term_weights)
