@@ -19,6 +19,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from threadpoolctl import threadpool_limits
 
 from .choose.criteria import information_criteria
 from .choose.cv import Problem, cross_validate
@@ -312,6 +313,11 @@ def _sampling_units(survey, options):
 
 
 def _criteria_table(fits: dict, problem: Problem) -> pd.DataFrame:
+    with threadpool_limits(limits=1):   # many small matrices: one thread is fastest
+        return _criteria_parts(fits, problem)
+
+
+def _criteria_parts(fits: dict, problem: Problem) -> pd.DataFrame:
     parts = []
     for mix, fit in fits.items():
         frame = information_criteria(fit, problem.X, problem.y, weights=problem.weights,

@@ -224,22 +224,24 @@ def selected_terms(fit, step) -> list:
 
 def cross_validate(problem: Problem, splits, *, mixes=(1.0,), metrics=("deviance",),
                    primary="deviance", n_penalties=100, penalty_ratio=None, rows=None,
-                   fold_tol=None, run=None) -> CVResult:
+                   fold_tol=None, full_tol=None, run=None) -> CVResult:
     """Cross-validate a path for each mix on the given (train, test) splits.
 
     The grid of each mix comes from its path on ``rows`` (default: all rows;
     in nested cross-validation, the outer training set), and the splits index
     into the full table. The fold fits converge to ``fold_tol`` (default
     1e-5: held-out scores are then exact to far more digits than their
-    standard errors), the full-data paths to the core's default.
+    standard errors), the full-data paths to ``full_tol`` (default: the
+    core's 1e-7).
 
     ``run(fn, tasks, shared)`` executes the fold tasks (default: in this
     process); pass a wrapper of :func:`pathfinder.parallel.run_tasks` to
     spread them over workers.
     """
     metrics = tuple(dict.fromkeys((primary,) + tuple(metrics)))
+    precision = {} if full_tol is None else {"tol": full_tol}
     fits = {float(mix): problem.fit(rows=rows, mix=float(mix), n_penalties=n_penalties,
-                                    penalty_ratio=penalty_ratio) for mix in mixes}
+                                    penalty_ratio=penalty_ratio, **precision) for mix in mixes}
     tasks = fold_tasks(fits, splits, metrics, FOLD_TOL if fold_tol is None else fold_tol)
     problem.cross_products  # computed once here, shipped with the problem to workers
     results = (run or _run_here)(run_fold, tasks, problem)

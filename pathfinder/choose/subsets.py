@@ -712,7 +712,8 @@ def stepwise(problem: Problem, *, direction="forward", criterion="aic", rows=Non
                 candidates.append((fitter.criterion(trial_ll, len(grown), criterion), 1, j, "add",
                                    grown, trial_ll, trial_beta))
         if not candidates:
-            stopped = "no term left to add or remove"
+            stopped = ("reached the largest number of terms" if len(members) >= max_terms
+                       else "no term left to add or remove")
             break
         best = min(candidates, key=lambda c: (c[0], c[1], c[2]))
         # A start with an infinite criterion (AICc with too few rows) improves on any finite one.

@@ -15,8 +15,11 @@ the work done for the parent is reused:
 * :func:`glm_search` (binomial, Poisson) refits each subset by Newton's
   method, started from its parent's coefficients with the new one at zero.
   At that start the linear predictor is the parent's, so the first Hessian
-  only needs one new row (``O(n |S|)`` instead of ``O(n |S|^2)``); one or two
-  further Newton steps usually reach the tolerance.
+  only needs one new row, formed from the parent's working weights and
+  residuals (kept per depth, or recomputed when memory is short); usually one
+  evaluated Newton step then reaches the tolerance, and the step it proposes
+  next is taken without evaluation (near the optimum Newton's method squares
+  the error).
 
 A search can start at any position of the sequence and visit ``count``
 subsets from there: the parents of the first subset are rebuilt by the same
