@@ -254,7 +254,8 @@ def explore(data, options: StudyOptions, *, backend: Backend | None = None, prog
                 term_groups=selector.term_groups))
         if options.subsets:
             chooser = SubsetSelector(budget=int(options.subset_budget))
-            search, steps, made = stages.run("subset search", lambda _: chooser.run(problem, None))
+            search, steps, made = stages.run("subset search", lambda tick: chooser.run(
+                problem, None, run=runner(tick)))
             full_choices += made
             extra_tables["stepwise"] = steps.steps
             if search is not None:

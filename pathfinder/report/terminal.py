@@ -36,46 +36,85 @@ class ProgressReporter:
         return lambda *_: progress.advance(task)
 
 
+def _skill(study):
+    """(metric, outer mean, outer SE) of the suggested model, or None without nested CV."""
+    table = study.tables.get("comparison")
+    if table is None:
+        return None
+    row = table[(table.method == study.chosen.method) & (table.rule == study.chosen.rule)]
+    if row.empty:
+        return None
+    row = row.iloc[0]
+    return row.metric, float(row.outer_mean), float(row.outer_se)
+
+
+def _frequency(study):
+    table = study.tables.get("stability")
+    return {} if table is None else dict(zip(table.term, table.selection_frequency))
+
+
 def summary_dict(study, out) -> dict:
-    path = study.tables["path"]
+    chosen = study.tables["chosen"]
+    skill = _skill(study)
+    frequency = _frequency(study)
     return {
         "output": str(out),
         "rows_used": int(study.survey.n),
         "rows_read": int(study.survey.n_read),
         "family": study.survey.family,
-        "terms": len(study.design.names),
-        "paths": [
-            {"method": m, "mix": float(mix), "penalties": int(len(g)),
-             "largest_deviance_explained": float(g.deviance_explained.max())}
-            for (m, mix), g in path.groupby(["method", "mix"], sort=False)
-        ],
+        "folds": study.folds.scheme,
+        "chosen": {
+            "method": study.chosen.method, "rule": study.chosen.rule,
+            "terms": [{"term": t, "estimate": float(e), "selection_frequency": frequency.get(t)}
+                      for t, e in zip(chosen.term, chosen.estimate)],
+        },
+        "held_out": None if skill is None else {"metric": skill[0], "mean": skill[1], "se": skill[2]},
         "warnings": list(study.warnings),
     }
 
 
 def print_summary(study, out, console: Console | None = None) -> None:
+    """The closing summary: the data, the suggested model, its honest skill, the files."""
     console = console or Console()
     survey = study.survey
     console.print(f"[bold]{survey.response_name}[/bold]: {survey.family_reason}")
-    for note in survey.notes[1:]:
-        console.print(f"  {note}")
     console.print(f"rows used {survey.n} of {survey.n_read}; {len(survey.predictors)} predictors "
-                  f"-> {len(study.design.names)} terms")
-    table = Table(title="models along the path", title_justify="left")
-    for column in ("method", "mix", "penalty", "terms", "deviance explained"):
-        table.add_column(column, justify="right" if column != "method" else "left")
-    path = study.tables["path"]
-    for (method, mix), g in path.groupby(["method", "mix"], sort=False):
-        picks = sorted({0, len(g) // 4, len(g) // 2, (3 * len(g)) // 4, len(g) - 1})
-        for i in picks:
-            row = g.iloc[i]
-            table.add_row(method, f"{mix:g}", f"{row.penalty:.4g}", str(int(row.n_terms)),
-                          f"{row.deviance_explained:.3f}")
+                  f"-> {len(study.design.names)} terms; folds: {study.folds.scheme} "
+                  f"({study.folds.n_folds})")
+    comparison = study.tables.get("comparison")
+    if comparison is not None:
+        table = Table(title="every method on the same outer folds (lower is better)",
+                      title_justify="left")
+        for column in ("method", "rule", "terms", f"held-out {comparison.metric.iloc[0]}", "SE",
+                       "consistency"):
+            table.add_column(column, justify="left" if column in ("method", "rule") else "right")
+        for _, row in comparison.iterrows():
+            mark = (row.method == study.chosen.method and row.rule == study.chosen.rule)
+            style = "bold" if mark else None
+            table.add_row(row.method, row.rule, str(int(row.n_terms)), f"{row.outer_mean:.4g}",
+                          f"{row.outer_se:.2g}", f"{row.jaccard:.2f}", style=style)
+        console.print(table)
+    chosen = study.tables["chosen"]
+    frequency = _frequency(study)
+    table = Table(title=f"suggested model: {study.chosen.method} ({study.chosen.rule})",
+                  title_justify="left")
+    for column in ("term", "estimate", "per SD", "chosen in subsamples"):
+        table.add_column(column, justify="left" if column == "term" else "right")
+    for _, row in chosen.iterrows():
+        f = frequency.get(row.term)
+        table.add_row(row.term, f"{row.estimate:.4g}", f"{row.estimate_std:+.3f}",
+                      "" if f is None else f"{f:.0%}")
     console.print(table)
+    skill = _skill(study)
+    if skill is not None:
+        console.print(f"held-out {skill[0]} of the suggested model: {skill[1]:.4g} "
+                      f"(SE {skill[2]:.2g}), from nested cross-validation")
     if study.warnings:
         console.print("[bold yellow]warnings[/bold yellow]")
         for message in study.warnings:
             console.print(f"  - {message}")
+    console.print("Correlative models are not evidence of cause; predictions outside the "
+                  "sampled conditions are unreliable.")
     console.print(f"results written to [bold]{out}[/bold]")
 
 
