@@ -150,6 +150,117 @@ def _cluster_address(cluster) -> str:
     return str(address) if address else "a scheduler reached through the given client"
 
 
+class Session:
+    """One backend held open for a whole run, so the shared data travel once.
+
+    A run has several stages (cross-validation, relaxation, stability,
+    subsets, nested cross-validation) that all read the same problem. Within a
+    session the local worker pool, or the Dask client and the scattered copy
+    of the shared data, are kept and reused by every stage that passes the
+    same ``shared`` object; only tasks and results travel after that::
+
+        with Session(Backend(jobs=2)) as session:
+            first = session.run(fn, tasks, problem)
+            second = session.run(other_fn, more_tasks, problem)   # problem not sent again
+
+    ``sends`` counts how many times shared data were sent out.
+    """
+
+    def __init__(self, backend: Backend):
+        self.backend = backend
+        self.sends = 0
+        self._pool = None            # (shared, ProcessPoolExecutor)
+        self._client = None
+        self._client_owned = False
+        self._scattered = None       # (shared, future)
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+    def close(self):
+        if self._pool is not None:
+            self._pool[1].shutdown(wait=True, cancel_futures=True)
+            self._pool = None
+        if self._scattered is not None and self._client is not None and not self._client_owned:
+            try:
+                self._client.cancel([self._scattered[1]])
+            except Exception:  # the caller's cluster may already be gone
+                pass
+        self._scattered = None
+        if self._client is not None and self._client_owned:
+            self._client.close()
+        self._client = None
+
+    def run(self, fn: Callable, tasks: list, shared, *, on_done=None) -> list:
+        """``fn(shared, task)`` for every task, results in task order (see run_tasks)."""
+        tasks = list(tasks)
+        backend = self.backend
+        _check_module_level(fn, local_processes=backend.cluster is None and backend.jobs > 1)
+        if not tasks:
+            return []
+        if backend.cluster is not None:
+            return self._run_on_cluster(fn, tasks, shared, on_done)
+        if min(backend.jobs, len(tasks)) == 1:
+            return _run_here(fn, tasks, shared, on_done)
+        return self._run_on_pool(fn, tasks, shared, on_done)
+
+    def _run_on_pool(self, fn, tasks, shared, on_done):
+        if self._pool is None or self._pool[0] is not shared:
+            if self._pool is not None:
+                self._pool[1].shutdown(wait=True)
+            pool = ProcessPoolExecutor(max_workers=self.backend.jobs, mp_context=_start_method_context(fn),
+                                       initializer=_start_worker, initargs=(None, shared))
+            self._pool = (shared, pool)
+            self.sends += 1
+        pool = self._pool[1]
+        results = [None] * len(tasks)
+        futures = {pool.submit(_run_in_worker, task, fn): i for i, task in enumerate(tasks)}
+        try:
+            for future in as_completed(futures):
+                i = futures[future]
+                results[i] = future.result()  # raises the task's own exception
+                if on_done is not None:
+                    on_done(i)
+        except BrokenProcessPool:
+            self._pool = None
+            raise InputError(f"a worker process was stopped (often for lack of memory) while "
+                             f"{self.backend.jobs} ran at once: try fewer --jobs") from None
+        except BaseException:
+            for future in futures:
+                future.cancel()
+            raise
+        return results
+
+    def _run_on_cluster(self, fn, tasks, shared, on_done):
+        if self._client is None:
+            self._client, self._client_owned = _connect(self.backend)
+        client = self._client
+        from dask.distributed import as_completed as as_completed_on_cluster
+        if self._scattered is None or self._scattered[0] is not shared:
+            if self._scattered is not None:
+                client.cancel([self._scattered[1]])
+            self._scattered = (shared, client.scatter(shared, broadcast=True, hash=False))
+            self.sends += 1
+        future_shared = self._scattered[1]
+        futures = client.map(one_thread, [fn] * len(tasks), [future_shared] * len(tasks), tasks,
+                             pure=False)
+        position = {future.key: i for i, future in enumerate(futures)}
+        results = [None] * len(tasks)
+        try:
+            for future in as_completed_on_cluster(futures, loop=client.loop):
+                i = position[future.key]
+                results[i] = future.result()  # raises the task's own exception
+                if on_done is not None:
+                    on_done(i)
+        except BaseException:
+            client.cancel(futures)
+            raise
+        return results
+
+
 def run_tasks(fn: Callable, tasks: list, shared, backend: Backend, *,
               on_done: Callable[[int], Any] | None = None) -> list:
     """Call ``fn(shared, task)`` for every task; return the results in task order.
@@ -220,8 +331,8 @@ def _start_worker(fn, shared) -> None:
     _worker_shared = shared
 
 
-def _run_in_worker(task):
-    return _worker_fn(_worker_shared, task)
+def _run_in_worker(task, fn=None):
+    return (fn or _worker_fn)(_worker_shared, task)
 
 
 def _start_method_context(fn):

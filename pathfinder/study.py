@@ -36,7 +36,7 @@ from .diagnostics.response_curves import response_curves
 from .data.intake import Survey, TableInfo, prepare_survey, read_table
 from .errors import FitWarning, InputError
 from .outputs import tables
-from .parallel import Backend, describe, run_tasks
+from .parallel import Backend, Session, describe
 
 DEFAULT_MIXES = (1.0, 0.75, 0.5, 0.25, 0.0)
 
@@ -141,6 +141,7 @@ class Study:
     warnings: tuple = field(default=())
     notes: tuple = field(default=())
     stability: object = None
+    data_sends: int = 0           # times the shared data went out to workers
 
     @property
     def fits(self) -> dict:
@@ -219,10 +220,12 @@ def explore(data, options: StudyOptions, *, backend: Backend | None = None, prog
                        fold_labels=fold_labels, repeats=int(options.repeats), seed=options.seed)
     splits = [s for r in range(folds.n_repeats) for s in folds.splits(r)]
 
-    def runner(tick):
-        return lambda fn, tasks, shared: run_tasks(fn, tasks, shared, backend, on_done=tick)
+    session = Session(backend)   # one pool / one scattered copy of the data for every stage
 
-    with warnings.catch_warnings(record=True) as caught:
+    def runner(tick):
+        return lambda fn, tasks, shared: session.run(fn, tasks, shared, on_done=tick)
+
+    with session, warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", FitWarning)
         cv = stages.run("cross-validating the paths", lambda tick: cross_validate(
             problem, splits, mixes=options.mixes, metrics=metrics, primary=options.metric,
@@ -254,6 +257,15 @@ def explore(data, options: StudyOptions, *, backend: Backend | None = None, prog
                 term_groups=selector.term_groups))
         if options.subsets:
             chooser = SubsetSelector(budget=int(options.subset_budget))
+            selectors.append(chooser)
+        outer = None
+        if options.nested:
+            outer = stages.run("nested cross-validation", lambda tick: nested_cv(
+                problem, folds.splits(0), plan, seed=options.seed, inner_k=int(options.inner_folds),
+                mixes=options.mixes, metric=options.metric, n_penalties=int(options.n_penalties),
+                penalty_ratio=options.penalty_ratio, relax=options.relax, selectors=selectors,
+                run=runner(tick)), total=folds.n_folds)
+        if options.subsets:   # after nested CV: its data go out once, on their own
             search, steps, made = stages.run("subset search", lambda tick: chooser.run(
                 problem, None, run=runner(tick)))
             full_choices += made
@@ -263,14 +275,6 @@ def explore(data, options: StudyOptions, *, backend: Backend | None = None, prog
                 extra_tables["subsets"] = table
                 importance = variable_importance(table, problem.names)
                 extra_tables["importance"] = importance.rename("importance").rename_axis("term").reset_index()
-            selectors.append(chooser)
-        outer = None
-        if options.nested:
-            outer = stages.run("nested cross-validation", lambda tick: nested_cv(
-                problem, folds.splits(0), plan, seed=options.seed, inner_k=int(options.inner_folds),
-                mixes=options.mixes, metric=options.metric, n_penalties=int(options.n_penalties),
-                penalty_ratio=options.penalty_ratio, relax=options.relax, selectors=selectors,
-                run=runner(tick)), total=folds.n_folds)
     fit_warnings = tuple(dict.fromkeys(str(w.message) for w in caught
                                        if issubclass(w.category, FitWarning)))
 
@@ -300,7 +304,7 @@ def explore(data, options: StudyOptions, *, backend: Backend | None = None, prog
         options=options, survey=survey, design=design, table_info=info, folds=folds, cv=cv,
         relaxed=relaxed, choices=full_choices, chosen=chosen, tables=result_tables, timings=stages.timings,
         backend=describe(backend), warnings=tuple(survey.warnings) + fit_warnings, notes=notes,
-        stability=stability,
+        stability=stability, data_sends=session.sends,
     )
 
 

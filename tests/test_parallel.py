@@ -293,3 +293,18 @@ def test_data_of_a_run_are_released_from_the_callers_cluster(dask_cluster):
     while client.who_has() and time.monotonic() < deadline:
         time.sleep(0.05)
     assert client.who_has() == {}
+
+
+def test_a_session_sends_the_shared_data_once_for_many_stages():
+    # Several stages of a run with the same shared object: one pool, one send.
+    from pathfinder.parallel import Session
+    shared = np.arange(10.0)
+    with Session(Backend(jobs=2)) as session:
+        first = session.run(_session_task, list(range(6)), shared)
+        second = session.run(_session_task, list(range(6, 12)), shared)
+        assert session.sends == 1
+    assert first + second == [float(shared.sum()) + t for t in range(12)]
+
+
+def _session_task(shared, task):
+    return float(shared.sum()) + task
