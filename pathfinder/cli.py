@@ -17,7 +17,7 @@ from .errors import InputError
 
 DEMO_FOLDER = "pathfinder-demo"
 DEMO_CHOICES = {"presence": "binomial", "count": "poisson", "continuous": "gaussian"}
-DEMO_BLOCK_KM = 40.0  # spatial blocks for the demo survey, about its autocorrelation range
+DEMO_BLOCK_KM = 50.0  # spatial blocks for the demo survey, beyond its autocorrelation range (~42 km)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -117,6 +117,8 @@ def _add_choosing_options(p):
 def _add_output_options(p, default_out=None):
     p.add_argument("--out", default=default_out, metavar="DIR", required=default_out is None,
                    help="output folder (written completely or not at all)")
+    p.add_argument("--figures", choices=["png", "svg"],
+                   help="also write every chart of the report to DIR/figures at print resolution")
     p.add_argument("--overwrite", action="store_true", help="replace a non-empty output folder")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary on standard output")
@@ -325,12 +327,14 @@ def _is_earlier_demo(folder: Path) -> bool:
 def _finish(study, args, *, command, inputs=()) -> int:
     from .outputs.write import write_study
     from .report.terminal import print_summary
-    out = write_study(study, args.out, overwrite=args.overwrite, command=command, inputs=inputs)
+    out = write_study(study, args.out, overwrite=args.overwrite, command=command, inputs=inputs,
+                      figures=args.figures)
     if args.json:
         from .report.terminal import summary_dict
         print(json.dumps(summary_dict(study, out)))
     elif not args.quiet:
         print_summary(study, out)
+        print(f"open {Path(out).resolve() / 'report.html'} in a web browser to explore the results")
     return 0
 
 

@@ -34,14 +34,23 @@ def write_json(data, path: Path) -> None:
     path.write_text(json.dumps(data, indent=2, sort_keys=False, default=str) + "\n", encoding="utf-8")
 
 
-def write_study(study, out, *, overwrite: bool = False, command: str = "explore", inputs=()) -> Path:
-    """Write every table as ``name.csv`` plus ``run.json``; return the folder.
+def write_study(study, out, *, overwrite: bool = False, command: str = "explore", inputs=(),
+                report: bool = True, figures: str | None = None) -> Path:
+    """Write every table as ``name.csv``, ``model.json``, ``run.json`` and the report.
 
     ``inputs`` are files the folder must not swallow (see ``check_target``).
+    ``report`` writes ``report.html`` (rendered from the tables just written);
+    ``figures`` ("png" or "svg") also writes every chart to ``figures/``.
+    All of it lands in the folder at once, or none of it does.
     """
+    from ..report.html import write_figures, write_report
     with output_folder(out, overwrite=overwrite, inputs=inputs) as folder:
         for name, frame in study.tables.items():
             write_csv(frame, folder / f"{name}.csv")
         save_model(model_of(study), folder / "model.json")
         write_json(run_record(study, command), folder / "run.json")
+        if report:
+            write_report(folder)
+        if figures:
+            write_figures(folder, fmt=figures)
     return Path(out)

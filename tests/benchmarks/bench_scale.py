@@ -1,0 +1,112 @@
+"""Scale: a million-row path on one machine, and stability on a cluster vs local processes.
+
+Run from the repository root:
+
+    python tests/benchmarks/bench_scale.py            # both cases
+    python tests/benchmarks/bench_scale.py million    # one
+
+* million: binomial lasso path, 50 penalties, n = 1,000,000, p = 100, against
+  one X'X product on the same data (goal <= 15), and its peak memory above
+  the data (goal <= 2 x the size of X), measured in a child process.
+* cluster: stability selection with 50 complementary pairs (100 half-sample
+  fits) of a binomial lasso on n = 200,000, p = 100, on a 2-worker Dask
+  LocalCluster against the same work on 2 local processes (goal <= 1.2).
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+import time
+import warnings
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT))
+
+MILLION_CHILD = """
+import json, resource, sys, time, tracemalloc
+import numpy as np
+sys.path.insert(0, {root!r})
+from pathfinder import fit_path
+n, p = 1_000_000, 100
+rng = np.random.default_rng(5)
+X = np.empty((n, p), order="F")
+for j in range(p):
+    X[:, j] = rng.standard_normal(n)
+eta = X[:, :8] @ np.linspace(0.4, -0.4, 8) - 0.5
+y = (rng.random(n) < 1 / (1 + np.exp(-eta))).astype(float)
+fit_path(X[:2000], y[:2000], family="binomial", n_penalties=3)      # compile first
+gram = []
+for _ in range(3):
+    t = time.perf_counter(); X.T @ X; gram.append(time.perf_counter() - t)
+before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+t = time.perf_counter()
+fit = fit_path(X, y, family="binomial", n_penalties=50)
+path_time = time.perf_counter() - t
+after = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+print(json.dumps(dict(path=path_time, gram=float(np.median(gram)), x_bytes=X.nbytes,
+                      rss_rise=after - before, steps=len(fit.penalties))))
+"""
+
+
+def case_million():
+    out = subprocess.run([sys.executable, "-c", MILLION_CHILD.format(root=str(ROOT))],
+                         capture_output=True, text=True, check=True)
+    m = json.loads(out.stdout.strip().splitlines()[-1])
+    return [(f"million  binomial lasso path ({m['steps']} penalties), n=1,000,000 p=100 / one X'X product",
+             m["path"], m["gram"], 15.0),
+            ("million  peak resident memory above the data / size of X", m["rss_rise"] / m["x_bytes"],
+             1.0, 2.0)]
+
+
+def case_cluster():
+    from dask.distributed import Client, LocalCluster
+
+    from pathfinder.choose.cv import Problem
+    from pathfinder.choose.stability import stability_selection
+    from pathfinder.parallel import Backend, Session
+
+    rng = np.random.default_rng(6)
+    n, p = 200_000, 100
+    X = np.empty((n, p), order="F")
+    for j in range(p):
+        X[:, j] = rng.standard_normal(n)
+    eta = X[:, :6] @ np.linspace(0.3, -0.3, 6)
+    y = (rng.random(n) < 1 / (1 + np.exp(-eta))).astype(float)
+    problem = Problem(X, y, "binomial", tuple(f"x{j}" for j in range(p)))
+    grid = problem.fit(n_penalties=30).penalties
+
+    def timed(backend):
+        with Session(backend) as session:
+            t = time.perf_counter()
+            stability_selection(problem, n_pairs=50, penalties=grid, seed=1,
+                                run=lambda fn, tasks, shared: session.run(fn, tasks, shared))
+            return time.perf_counter() - t
+
+    local = timed(Backend(jobs=2))
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+                      dashboard_address=None) as cluster, Client(cluster) as client:
+        on_cluster = timed(Backend(cluster=client))
+    return [("cluster  stability, 100 half fits, n=200,000 p=100: 2-worker LocalCluster / 2 local processes",
+             on_cluster, local, 1.2)]
+
+
+CASES = {"million": case_million, "cluster": case_cluster}
+
+
+def main(argv):
+    warnings.simplefilter("ignore")
+    print(f"{'case':<100} {'ours':>9} {'peer':>9} {'ratio':>7} {'goal':>6}")
+    for key in argv or list(CASES):
+        for label, ours, peer, goal in CASES[key]():
+            ratio = ours / peer
+            print(f"{label:<100} {ours:9.3f} {peer:9.3f} {ratio:7.3f} {goal:6.2f} "
+                  f"{'met' if ratio <= goal else 'MISSED'}", flush=True)
+
+
+if __name__ == "__main__":
+    main(sys.argv[1:])
