@@ -166,8 +166,9 @@ class Session:
     ``sends`` counts how many times shared data were sent out.
     """
 
-    def __init__(self, backend: Backend):
+    def __init__(self, backend: Backend, *, max_workers: int | None = None):
         self.backend = backend
+        self.workers = backend.jobs if max_workers is None else min(backend.jobs, max_workers)
         self.sends = 0
         self._pool = None            # (shared, ProcessPoolExecutor)
         self._client = None
@@ -203,7 +204,7 @@ class Session:
             return []
         if backend.cluster is not None:
             return self._run_on_cluster(fn, tasks, shared, on_done)
-        if min(backend.jobs, len(tasks)) == 1:
+        if min(self.workers, len(tasks)) == 1:
             return _run_here(fn, tasks, shared, on_done)
         return self._run_on_pool(fn, tasks, shared, on_done)
 
@@ -211,8 +212,8 @@ class Session:
         if self._pool is None or self._pool[0] is not shared:
             if self._pool is not None:
                 self._pool[1].shutdown(wait=True)
-            pool = ProcessPoolExecutor(max_workers=self.backend.jobs, mp_context=_start_method_context(fn),
-                                       initializer=_start_worker, initargs=(None, shared))
+            pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=_start_method_context(fn),
+                                       initializer=_start_worker, initargs=(shared,))
             self._pool = (shared, pool)
             self.sends += 1
         pool = self._pool[1]
@@ -227,7 +228,7 @@ class Session:
         except BrokenProcessPool:
             self._pool = None
             raise InputError(f"a worker process was stopped (often for lack of memory) while "
-                             f"{self.backend.jobs} ran at once: try fewer --jobs") from None
+                             f"{self.workers} ran at once: try fewer --jobs") from None
         except BaseException:
             for future in futures:
                 future.cancel()
@@ -268,18 +269,12 @@ def run_tasks(fn: Callable, tasks: list, shared, backend: Backend, *,
     ``on_done(i)`` is called in this process as soon as task ``i`` has
     finished (in whatever order tasks finish), for progress display. With
     local processes, no more workers are started than there are tasks, and a
-    single task runs in this process.
+    single task runs in this process. (A :class:`Session` does the same for
+    several calls that share data.)
     """
     tasks = list(tasks)
-    _check_module_level(fn, local_processes=backend.cluster is None and backend.jobs > 1)
-    if not tasks:
-        return []
-    if backend.cluster is not None:
-        return _run_on_cluster(fn, tasks, shared, backend, on_done)
-    n_workers = min(backend.jobs, len(tasks))
-    if n_workers == 1:
-        return _run_here(fn, tasks, shared, on_done)
-    return _run_on_local_processes(fn, tasks, shared, n_workers, on_done)
+    with Session(backend, max_workers=max(len(tasks), 1)) as session:
+        return session.run(fn, tasks, shared, on_done=on_done)
 
 
 # --------------------------------------------------------------------------
@@ -314,25 +309,24 @@ def one_thread(fn, shared, task):
 # --------------------------------------------------------------------------
 
 # Set only inside a worker process, once, by _start_worker.
-_worker_fn = None
 _worker_shared = None
 
 
-def _start_worker(fn, shared) -> None:
-    """Pool initializer: runs once in each worker process and keeps fn and the shared data.
+def _start_worker(shared) -> None:
+    """Pool initializer: runs once in each worker process and keeps the shared data.
 
     Each worker's linear-algebra library gets one thread: the workers already
     fill the cores, and two threads per worker on a busy core made small
     matrix products twenty times slower (measured on a 2-core machine).
     """
-    global _worker_fn, _worker_shared
+    global _worker_shared
     threadpool_limits(limits=1)
-    _worker_fn = fn
     _worker_shared = shared
 
 
-def _run_in_worker(task, fn=None):
-    return (fn or _worker_fn)(_worker_shared, task)
+def _run_in_worker(task, fn):
+    """Runs in a worker: ``fn`` travels with each task by reference (module and name)."""
+    return fn(_worker_shared, task)
 
 
 def _start_method_context(fn):
@@ -345,27 +339,6 @@ def _start_method_context(fn):
         preload.append(fn.__module__)
     context.set_forkserver_preload(preload)  # only acts before the server's first start
     return context
-
-
-def _run_on_local_processes(fn, tasks, shared, n_workers, on_done) -> list:
-    results = [None] * len(tasks)
-    with ProcessPoolExecutor(max_workers=n_workers, mp_context=_start_method_context(fn),
-                             initializer=_start_worker, initargs=(fn, shared)) as pool:
-        futures = {pool.submit(_run_in_worker, task): i for i, task in enumerate(tasks)}
-        try:
-            for future in as_completed(futures):
-                i = futures[future]
-                results[i] = future.result()  # raises the task's own exception
-                if on_done is not None:
-                    on_done(i)
-        except BrokenProcessPool:
-            raise InputError(f"a worker process was stopped (often for lack of memory) while "
-                             f"{n_workers} ran at once: try fewer --jobs") from None
-        except BaseException:
-            for future in futures:
-                future.cancel()
-            raise
-    return results
 
 
 # --------------------------------------------------------------------------
@@ -400,33 +373,6 @@ def _connect(backend: Backend):
             f"the form tcp://HOST:PORT and that no firewall blocks it, or leave out the cluster "
             f"option to run on this machine") from None
     return client, True
-
-
-def _run_on_cluster(fn, tasks, shared, backend, on_done) -> list:
-    client, created_here = _connect(backend)  # imports Dask, or says how to install it
-    from dask.distributed import as_completed as as_completed_on_cluster
-
-    shared_copy, futures, finished = None, [], False
-    try:
-        shared_copy = client.scatter(shared, broadcast=True, hash=False)
-        futures = client.map(one_thread, [fn] * len(tasks), [shared_copy] * len(tasks), tasks,
-                             pure=False)
-        position = {future.key: i for i, future in enumerate(futures)}
-        results = [None] * len(tasks)
-        for future in as_completed_on_cluster(futures, loop=client.loop):
-            i = position[future.key]
-            results[i] = future.result()  # raises the task's own exception
-            if on_done is not None:
-                on_done(i)
-        finished = True
-        return results
-    finally:
-        if created_here:
-            client.close()
-        elif not finished:
-            # Stop what is still running on the caller's cluster. After a clean
-            # run, dropping our references is enough for Dask to free the data.
-            client.cancel([f for f in [*futures, shared_copy] if f is not None])
 
 
 # --------------------------------------------------------------------------

@@ -18,55 +18,15 @@ from __future__ import annotations
 import json
 import subprocess
 import sys
-import time
-import warnings
 from pathlib import Path
 
 import numpy as np
 
-ROOT = Path(__file__).resolve().parents[2]
-sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from common import ROOT, ar_design, grid_for, print_cases, side_by_side, standardise  # noqa: E402
 
 from pathfinder import fit_path  # noqa: E402
-
-REPEATS = 5
-
-
-def ar_design(rng, n, p, rho):
-    """AR(rho) correlated Gaussian predictors, built column by column."""
-    X = np.empty((n, p))
-    X[:, 0] = rng.standard_normal(n)
-    for j in range(1, p):
-        X[:, j] = rho * X[:, j - 1] + np.sqrt(1 - rho**2) * rng.standard_normal(n)
-    return X
-
-
-def standardise(X):
-    return (X - X.mean(0)) / X.std(0)
-
-
-def median_time(fn, repeats=REPEATS):
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return float(np.median(times))
-
-
-def side_by_side(ours, peer, repeats=REPEATS):
-    """Alternate the two so drift in the machine's speed hits both alike."""
-    ours(), peer()  # warm-up
-    a, b = [], []
-    for _ in range(repeats):
-        a.append(median_time(ours, 1))
-        b.append(median_time(peer, 1))
-    return float(np.median(a)), float(np.median(b))
-
-
-def grid_for(X, y, family, n_penalties, ratio):
-    lam_max = fit_path(X, y, family=family, n_penalties=2).penalties[0]
-    return lam_max * np.logspace(0, np.log10(ratio), n_penalties)
 
 
 def case_a():
@@ -180,14 +140,7 @@ CASES = {"a": case_a, "b": case_b, "c": case_c, "d": case_d, "m": case_memory}
 
 
 def main(argv):
-    chosen = argv or list(CASES)
-    print(f"{'case':<95} {'ours':>9} {'peer':>9} {'ratio':>7} {'goal':>6}")
-    warnings.simplefilter("ignore")
-    for key in chosen:
-        for label, ours, peer, goal in CASES[key]():
-            ratio = ours / peer
-            mark = "met" if ratio <= goal else "MISSED"
-            print(f"{label:<95} {ours:9.4f} {peer:9.4f} {ratio:7.3f} {goal:6.2f} {mark}", flush=True)
+    print_cases(CASES, argv)
 
 
 if __name__ == "__main__":

@@ -13,15 +13,13 @@ pathfinder is faster).
 from __future__ import annotations
 
 import sys
-import warnings
 from pathlib import Path
 
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from bench_core import ar_design, grid_for, side_by_side, standardise  # noqa: E402
+from common import ar_design, grid_for, print_cases, side_by_side, standardise  # noqa: E402
 
 from pathfinder.choose.cv import Problem, cross_validate  # noqa: E402
 from pathfinder.choose.folds import random_folds, stratified_folds  # noqa: E402
@@ -80,13 +78,7 @@ CASES = {"g": case_gaussian, "b": case_binomial}
 
 
 def main(argv):
-    warnings.simplefilter("ignore")
-    print(f"{'case':<100} {'ours':>9} {'peer':>9} {'ratio':>7} {'goal':>6}")
-    for key in argv or list(CASES):
-        for label, ours, peer, goal in CASES[key]():
-            ratio = ours / peer
-            print(f"{label:<100} {ours:9.3f} {peer:9.3f} {ratio:7.3f} {goal:6.2f} "
-                  f"{'met' if ratio <= goal else 'MISSED'}", flush=True)
+    print_cases(CASES, argv)
 
 
 if __name__ == "__main__":

@@ -19,13 +19,13 @@ import json
 import subprocess
 import sys
 import time
-import warnings
 from pathlib import Path
 
 import numpy as np
 
-ROOT = Path(__file__).resolve().parents[2]
-sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from common import ROOT, print_cases  # noqa: E402
 
 MILLION_CHILD = """
 import json, resource, sys, time, tracemalloc
@@ -99,13 +99,7 @@ CASES = {"million": case_million, "cluster": case_cluster}
 
 
 def main(argv):
-    warnings.simplefilter("ignore")
-    print(f"{'case':<100} {'ours':>9} {'peer':>9} {'ratio':>7} {'goal':>6}")
-    for key in argv or list(CASES):
-        for label, ours, peer, goal in CASES[key]():
-            ratio = ours / peer
-            print(f"{label:<100} {ours:9.3f} {peer:9.3f} {ratio:7.3f} {goal:6.2f} "
-                  f"{'met' if ratio <= goal else 'MISSED'}", flush=True)
+    print_cases(CASES, argv)
 
 
 if __name__ == "__main__":

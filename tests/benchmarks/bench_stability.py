@@ -22,14 +22,14 @@ These are measurements, not tests: nothing here fails on speed.
 from __future__ import annotations
 
 import sys
-import time
 import warnings
 from pathlib import Path
 
 import numpy as np
 
-ROOT = Path(__file__).resolve().parents[2]
-sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from common import ar_design, side_by_side  # noqa: E402
 
 from pathfinder import fit_path  # noqa: E402
 from pathfinder.choose.cv import Problem  # noqa: E402
@@ -40,29 +40,10 @@ REPEATS = 3
 GOAL = 30.0
 
 
-def ar_design(rng, n, p, rho):
-    """AR(rho) correlated Gaussian predictors, built column by column."""
-    X = np.empty((n, p))
-    X[:, 0] = rng.standard_normal(n)
-    for j in range(1, p):
-        X[:, j] = rho * X[:, j - 1] + np.sqrt(1 - rho**2) * rng.standard_normal(n)
-    return X
 
 
-def timed(fn):
-    start = time.perf_counter()
-    fn()
-    return time.perf_counter() - start
 
 
-def side_by_side(ours, peer, repeats=REPEATS):
-    """Alternate the two so drift in the machine's speed hits both alike; medians."""
-    ours(), peer()  # warm-up
-    a, b = [], []
-    for _ in range(repeats):
-        a.append(timed(ours))
-        b.append(timed(peer))
-    return float(np.median(a)), float(np.median(b))
 
 
 def main():
@@ -101,7 +82,7 @@ def main():
         ("s2 the same on the whole 100-penalty grid / one full path", stability_whole),
     ]
     for label, ours in cases:
-        mine, peer = side_by_side(ours, one_path)
+        mine, peer = side_by_side(ours, one_path, REPEATS)
         ratio = mine / peer
         mark = "met" if ratio <= GOAL else "MISSED"
         print(f"{label:<100} {mine:9.3f} {peer:9.3f} {ratio:7.2f} {GOAL:6.1f} {mark}", flush=True)

@@ -21,14 +21,14 @@ not tests: nothing here fails on speed.
 from __future__ import annotations
 
 import sys
-import time
 import warnings
 from pathlib import Path
 
 import numpy as np
 
-ROOT = Path(__file__).resolve().parents[2]
-sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from common import ar_design, side_by_side  # noqa: E402
 
 from pathfinder.choose.cv import Problem  # noqa: E402
 from pathfinder.choose.subsets import best_subsets, count_subsets  # noqa: E402
@@ -36,13 +36,6 @@ from pathfinder.choose.subsets import best_subsets, count_subsets  # noqa: E402
 REPEATS = 3
 
 
-def ar_design(rng, n, p, rho):
-    """AR(rho) correlated Gaussian predictors, built column by column."""
-    X = np.empty((n, p))
-    X[:, 0] = rng.standard_normal(n)
-    for j in range(1, p):
-        X[:, j] = rho * X[:, j - 1] + np.sqrt(1 - rho**2) * rng.standard_normal(n)
-    return X
 
 
 def random_subsets(rng, p, size):
@@ -50,20 +43,8 @@ def random_subsets(rng, p, size):
     return [np.flatnonzero(rng.random(p) < 0.5) for _ in range(size)]
 
 
-def timed(fn):
-    t = time.perf_counter()
-    fn()
-    return time.perf_counter() - t
 
 
-def side_by_side(ours, peer, repeats=REPEATS):
-    """Alternate the two so drift in the machine's speed hits both alike; medians."""
-    ours(), peer()  # warm-up
-    a, b = [], []
-    for _ in range(repeats):
-        a.append(timed(ours))
-        b.append(timed(peer))
-    return float(np.median(a)), float(np.median(b))
 
 
 def case_g():
@@ -82,7 +63,7 @@ def case_g():
         for cols in sample:
             np.linalg.lstsq(np.hstack([ones, X[:, cols]]), y, rcond=None)
 
-    ours, theirs = side_by_side(lambda: best_subsets(problem), peer)
+    ours, theirs = side_by_side(lambda: best_subsets(problem), peer, REPEATS)
     return [(f"g  Gaussian best subset, all 2^20 = {total:,} subsets, n=1,000 p=20 / numpy lstsq "
              "per subset (2,000 sampled, scaled up)", ours, theirs * total / len(sample), 0.05)]
 
@@ -104,7 +85,7 @@ def case_b():
         for cols in sample:
             sm.GLM(y, sm.add_constant(X[:, cols], has_constant="add"), family=family).fit()
 
-    ours, theirs = side_by_side(lambda: best_subsets(problem), peer)
+    ours, theirs = side_by_side(lambda: best_subsets(problem), peer, REPEATS)
     return [(f"b  binomial best subset, all 2^12 = {total:,} subsets, n=2,000 p=12 / statsmodels GLM "
              "fit per subset (200 sampled, scaled up)", ours, theirs * total / len(sample), 0.05)]
 
