@@ -231,8 +231,6 @@ def run_explore(args) -> int:
 
 
 def run_demo(args) -> int:
-    from importlib.resources import as_file, files
-
     from . import examples
     from .outputs.folder import check_target
     from .study import StudyOptions, explore
@@ -249,7 +247,7 @@ def run_demo(args) -> int:
         block_size=DEMO_BLOCK_KM, squares=("july_temp_c",), nested=not args.quick, seed=args.seed)
     args.overwrite = args.overwrite or _is_earlier_demo(Path(args.out))
     check_target(args.out, overwrite=args.overwrite)
-    with as_file(files(examples) / examples.DEMO_CSV) as table:
+    with examples.table_file() as table:
         study = explore(table, options, backend=_backend(args), progress=_progress(args))
     return _finish(study, args, command="demo")
 

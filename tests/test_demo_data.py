@@ -9,7 +9,6 @@ statsmodels recovers the stated coefficients).
 from __future__ import annotations
 
 import json
-import sys
 from pathlib import Path
 
 import numpy as np
@@ -17,13 +16,9 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 
-try:  # installed: data_examples/ is the subpackage pathfinder.examples
-    from pathfinder import examples as demo
-    from pathfinder.examples import generate
-except ImportError:  # running from a source checkout
-    sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
-    import data_examples as demo
-    from data_examples import generate
+from pathfinder import examples as demo
+
+generate = demo.generator()
 
 FAMILIES = {
     "binomial": sm.families.Binomial(),
@@ -128,7 +123,8 @@ def test_file_names_and_constants_agree(shipped, truth):
 
 
 def test_shipped_csv_is_small():
-    size = Path(demo.__file__).resolve().parent.joinpath(demo.DEMO_CSV).stat().st_size
+    with demo.table_file() as table:
+        size = table.stat().st_size
     assert size < 1_000_000
 
 
@@ -153,9 +149,9 @@ def test_sites_groups_and_coordinates(shipped):
 
 
 def test_docstring_counts_match_the_table(shipped):
-    assert f"{len(shipped)} sites" in demo.__doc__
-    assert f"{shipped['survey_centre'].nunique()} survey centres" in demo.__doc__
-    assert f"{shipped[demo.CATEGORICAL].nunique()} levels" in demo.__doc__.replace("five", "5")
+    assert f"{len(shipped)} sites" in demo.scenario.__doc__
+    assert f"{shipped['survey_centre'].nunique()} survey centres" in demo.scenario.__doc__
+    assert f"{shipped[demo.CATEGORICAL].nunique()} levels" in demo.scenario.__doc__.replace("five", "5")
 
 
 def test_covariates_and_categorical(shipped):

@@ -9,7 +9,6 @@ invented numbers (see helpers.invented_table).
 import hashlib
 import json
 from importlib import metadata
-from importlib.resources import files
 
 import numpy as np
 import pandas as pd
@@ -17,6 +16,7 @@ import pytest
 
 import pathfinder
 import pathfinder.outputs.write as write_module
+from pathfinder import examples
 from pathfinder.cli import DEMO_FOLDER, main
 
 from .helpers import (
@@ -151,7 +151,8 @@ def test_demo_writes_the_contract_files(demo):
 def test_demo_run_record_names_the_bundled_table(demo):
     folder, result = demo
     assert result.returncode == 0, result.stderr
-    bundled = files("pathfinder.examples").joinpath("carrow_bellmoss.csv").read_bytes()
+    with examples.table_file() as table:
+        bundled = table.read_bytes()
     record = _read_record(folder / DEMO_OUT)
     assert record["input"] is not None, "run.json does not say which table the demo read"
     assert record["input"]["sha256"] == hashlib.sha256(bundled).hexdigest()
