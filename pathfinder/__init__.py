@@ -6,8 +6,9 @@ The public API re-exports names only; each lives in its own module.
 from .core import PathResult, fit_path
 from .errors import FitWarning, InputError, PathfinderError
 from .predict import load_model, predict_table
+from .study import StudyOptions, explore
 
 __version__ = "0.1.0"
 
-__all__ = ["FitWarning", "InputError", "PathResult", "PathfinderError", "__version__", "fit_path",
-           "load_model", "predict_table"]
+__all__ = ["FitWarning", "InputError", "PathResult", "PathfinderError", "StudyOptions", "__version__",
+           "explore", "fit_path", "load_model", "predict_table"]

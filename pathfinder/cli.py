@@ -106,6 +106,19 @@ def _add_choosing_options(p):
                    help="skip nested cross-validation (faster, but no honest error for the comparison)")
     p.add_argument("--inner-folds", type=int, metavar="K",
                    help="folds inside each outer training set in nested cross-validation (default 5)")
+    p.add_argument("--pairs", dest="n_pairs", type=int, metavar="B",
+                   help="stability selection: pairs of half samples (default 50, i.e. 100 fits)")
+    p.add_argument("--stability-threshold", type=float, metavar="PI",
+                   help="selection frequency that makes a term stable (default 0.75)")
+    p.add_argument("--pfer", type=float, metavar="V",
+                   help="instead of a threshold: the expected number of wrongly stable terms to allow")
+    p.add_argument("--no-stability", dest="stability", action="store_const", const=False,
+                   help="skip stability selection")
+    p.add_argument("--subset-budget", type=int, metavar="N",
+                   help="largest number of models the best-subset search may fit (default 50000; "
+                        "the subset size is capped to fit)")
+    p.add_argument("--no-subsets", dest="subsets", action="store_const", const=False,
+                   help="skip the best-subset and stepwise searches")
     p.add_argument("--jobs", type=int, default=1, metavar="N", help="local worker processes (default 1)")
     p.add_argument("--cluster", metavar="ADDRESS",
                    help="send repeated fits to a running Dask scheduler, e.g. tcp://host:8786")

@@ -29,7 +29,7 @@ from .choose.nested import FoldPlan, choices, comparison_table, held_out_predict
 from .choose.folds import block_of
 from .choose.relaxed import relaxed_lasso
 from .choose.selectors import StabilitySelector, SubsetSelector
-from .choose.subsets import variable_importance
+from .choose.subsets import model_average, variable_importance
 from .data.design import Design, build_design
 from .diagnostics.collinearity import correlation_clusters, correlation_matrix, variance_inflation
 from .diagnostics.response_curves import response_curves
@@ -150,10 +150,20 @@ class Study:
 
 
 def load_table(data, options: StudyOptions):
-    """A path is read with intake's checks; a DataFrame is used as given."""
+    """A path is read with intake's checks; a DataFrame is used as given.
+
+    With the predictors listed, a Parquet file is read by columns: the columns
+    the run does not use are never loaded.
+    """
     if isinstance(data, pd.DataFrame):
         return data, None
-    return read_table(Path(data), decimal=options.decimal, delimiter=options.delimiter)
+    path = Path(data)
+    columns = None
+    if options.predictors is not None and path.suffix.lower() in (".parquet", ".pq"):
+        roles = [options.response, options.effort, options.offset, options.weights, options.groups,
+                 options.fold_column, *(options.coords or ())]
+        columns = list(dict.fromkeys([*options.predictors, *(r for r in roles if r)]))
+    return read_table(path, decimal=options.decimal, delimiter=options.delimiter, columns=columns)
 
 
 class _Stages:
@@ -182,14 +192,23 @@ def metrics_for(family: str, primary: str) -> tuple:
     return (primary,) + tuple(k for k, m in METRICS.items() if family in m.families and k != primary)
 
 
-def explore(data, options: StudyOptions, *, backend: Backend | None = None, progress=None) -> Study:
+def explore(data, options: StudyOptions | None = None, *, backend: Backend | None = None,
+            progress=None, jobs: int | None = None, **settings) -> Study:
     """Run the analysis on a table (a file path or a DataFrame).
+
+    Give the settings either as a :class:`StudyOptions` or as keywords of its
+    fields: ``explore("sites.csv", response="present", exclude=["site"])``.
+    ``jobs`` (local processes) is a shortcut for ``backend=Backend(jobs=...)``.
 
     ``progress(stage, total)`` (optional) is called when a stage starts and
     returns a function to call once per finished task; it is called again
     with ``total=None`` when the stage ends.
     """
-    backend = backend or Backend()
+    if options is None:
+        options = StudyOptions(**{k: tuple(v) if isinstance(v, list) else v for k, v in settings.items()})
+    elif settings:
+        raise InputError("give the settings either as StudyOptions or as keywords, not both")
+    backend = backend or Backend(jobs=jobs or 1)
     stages = _Stages(progress)
 
     def prepare(_):
@@ -275,6 +294,7 @@ def explore(data, options: StudyOptions, *, backend: Backend | None = None, prog
                 extra_tables["subsets"] = table
                 importance = variable_importance(table, problem.names)
                 extra_tables["importance"] = importance.rename("importance").rename_axis("term").reset_index()
+                extra_tables["averaged"] = _averaged_table(search, table, problem.names)
     fit_warnings = tuple(dict.fromkeys(str(w.message) for w in caught
                                        if issubclass(w.category, FitWarning)))
 
@@ -306,6 +326,17 @@ def explore(data, options: StudyOptions, *, backend: Backend | None = None, prog
         backend=describe(backend), warnings=tuple(survey.warnings) + fit_warnings, notes=notes,
         stability=stability, data_sends=session.sends,
     )
+
+
+def _averaged_table(search, akaike, names) -> pd.DataFrame:
+    """Model-averaged coefficients over the Akaike table (Burnham & Anderson 2002, 4.2.4).
+
+    Averaged coefficients are hard to read when predictors are collinear:
+    the weight of one covariate is shared with its stand-ins.
+    """
+    averaged = model_average(akaike, search.coefficients)
+    return pd.DataFrame({"term": list(names), "averaged_estimate": averaged,
+                         "criterion": "aicc"})
 
 
 def _sampling_units(survey, options):

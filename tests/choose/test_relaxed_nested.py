@@ -113,3 +113,19 @@ def test_inner_folds_follow_the_groups():
     inner = plan.make(rng.standard_normal(120), rows, seed=2)
     for g in np.unique(groups[rows]):
         assert len(set(inner.fold[groups[rows] == g])) == 1
+
+
+def test_best_subset_redone_inside_outer_folds_does_not_beat_the_null_on_noise():
+    # Pure noise (invented): if the full data leaked into subset selection, the
+    # chosen model would look better than the null model on the outer folds.
+    from pathfinder.choose.selectors import SubsetSelector
+    problem = _problem("gaussian", n=120, p=12, seed=21, signal=False)
+    outer = random_folds(problem.n, 5, seed=4)
+    rows = nested_cv(problem, outer.splits(), FoldPlan(k=5), seed=5, inner_k=3, mixes=(1.0,),
+                     n_penalties=20, relax=False, selectors=(SubsetSelector(budget=5_000),))
+    null_scores = [mean_deviance(problem.y[test], np.full(len(test), problem.y[train].mean()), "gaussian")
+                   for train, test in outer.splits()]
+    for method, rule in (("best subset", "aicc"), ("best subset", "bic"), ("stepwise", "aic")):
+        mine = rows[(rows.method == method) & (rows.rule == rule)].outer_score
+        se = mine.std(ddof=1) / np.sqrt(len(mine))
+        assert mine.mean() >= np.mean(null_scores) - 2 * se, (method, rule)

@@ -105,3 +105,40 @@ def test_model_file_predicts_what_the_run_reported(local_run, tmp_path):
     # sites.csv holds the fitted values of the suggested model for the rows used
     assert np.allclose(predicted.prediction.to_numpy()[sites.row - 1], sites.fitted, rtol=1e-9)
     assert model.document["pick"]["method"] == local_run.chosen.method
+
+
+def test_python_api_tables_equal_the_csv_files_and_predict_equals_the_command(tmp_path, monkeypatch):
+    import pathfinder
+    from pathfinder.cli import main
+    monkeypatch.chdir(tmp_path)
+    _table().to_csv("t.csv", index=False)
+    study = pathfinder.explore("t.csv", response="present", folds=4, mixes=[1.0], n_penalties=20,
+                               nested=False, stability=False, subsets=False, seed=3)
+    assert main(["explore", "t.csv", "--response", "present", "--folds", "4", "--mix", "1",
+                 "--penalties", "20", "--no-nested", "--no-stability", "--no-subsets", "--seed", "3",
+                 "--out", "out", "--quiet"]) == 0
+    write_study(study, tmp_path / "api")
+    for name in study.tables:
+        assert (tmp_path / "out" / f"{name}.csv").read_bytes() == (tmp_path / "api" / f"{name}.csv").read_bytes()
+    assert main(["predict", "out/model.json", "t.csv", "--out", "p.csv", "--quiet"]) == 0
+    by_command = pd.read_csv("p.csv")
+    by_api = pathfinder.load_model("out/model.json").predict(pd.read_csv("t.csv"))
+    assert np.allclose(by_command.prediction, by_api.prediction, rtol=1e-12)
+
+
+def test_parquet_is_read_by_the_columns_the_run_uses(tmp_path, monkeypatch):
+    import pathfinder.study as study_module
+    table = _table()
+    table["unused_notes"] = "field notes nobody models"
+    table.to_parquet(tmp_path / "t.parquet")
+    asked = {}
+    real = study_module.read_table
+
+    def spy(path, **kwargs):
+        asked.update(kwargs)
+        return real(path, **kwargs)
+
+    monkeypatch.setattr(study_module, "read_table", spy)
+    explore(tmp_path / "t.parquet", response="present", predictors=["c0", "c1"], coords=["x", "y"],
+            folds=3, mixes=[1.0], n_penalties=10, nested=False, stability=False, subsets=False)
+    assert set(asked["columns"]) == {"c0", "c1", "present", "x", "y"}
