@@ -33,34 +33,31 @@ def path_table(fits: dict) -> pd.DataFrame:
     return pd.concat(parts, ignore_index=True)
 
 
+def _with_relaxed(frame: pd.DataFrame, relaxed_part, method_name) -> pd.DataFrame:
+    """Name each row's method from its mix; append the relaxed lasso's rows (mix 1) after them."""
+    out = frame.copy()
+    out.insert(0, "method", [method_name(m) for m in out["mix"]])
+    out["relax"] = np.nan
+    if relaxed_part is None:
+        return out
+    extra = relaxed_part.copy()
+    extra.insert(0, "mix", 1.0)
+    extra.insert(0, "method", "relaxed lasso")
+    extra = extra.reindex(columns=out.columns)   # columns it lacks (train_mean) stay empty
+    return pd.concat([out, extra], ignore_index=True)
+
+
 def cv_table(curves: pd.DataFrame, relaxed, method_name) -> pd.DataFrame:
     """method, mix, step, penalty, n_terms, metric, cv_mean, cv_se, train_mean, relax.
 
     The relaxed lasso's curves (one per relaxation) follow the penalised ones.
     """
-    out = curves.copy()
-    out.insert(0, "method", [method_name(m) for m in out["mix"]])
-    out["relax"] = np.nan
-    if relaxed is not None:
-        extra = relaxed.curves.copy()
-        extra.insert(0, "mix", 1.0)
-        extra.insert(0, "method", "relaxed lasso")
-        extra["train_mean"] = np.nan
-        out = pd.concat([out, extra[out.columns]], ignore_index=True)
-    return out
+    return _with_relaxed(curves, None if relaxed is None else relaxed.curves, method_name)
 
 
 def picks_table(picks: pd.DataFrame, relaxed, method_name) -> pd.DataFrame:
     """method, mix, rule, step, penalty, n_terms, cv_mean, cv_se, terms (and relax)."""
-    out = picks.copy()
-    out.insert(0, "method", [method_name(m) for m in out["mix"]])
-    out["relax"] = np.nan
-    if relaxed is not None:
-        extra = relaxed.picks.copy()
-        extra.insert(0, "mix", 1.0)
-        extra.insert(0, "method", "relaxed lasso")
-        out = pd.concat([out, extra[out.columns]], ignore_index=True)
-    return out
+    return _with_relaxed(picks, None if relaxed is None else relaxed.picks, method_name)
 
 
 def folds_table(folds, rows) -> pd.DataFrame:
