@@ -218,8 +218,6 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     if rows is not None:
         rows = np.asarray(rows, dtype=np.int64)
         y, offset, w = y[rows], offset[rows], w[rows]
-    elif not np.all(np.isfinite(X)):
-        raise ValueError("X contains missing or infinite values")
     n = y.shape[0]
     if np.any(w < 0) or w.sum() <= 0:
         raise ValueError("weights must be non-negative and not all zero")
@@ -231,6 +229,8 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
 
     use_gram = fam.name == "gaussian" and n > p and p <= GRAM_MAX_TERMS
     mean = weighted_mean(X, w, rows)
+    if not np.all(np.isfinite(mean)):   # a NaN or infinity anywhere in the rows used spreads here
+        raise ValueError("X contains missing or infinite values")
     if use_gram:
         solver, scale, constant = GramSolver.from_data(X, y, w, offset, mean, standardize, 1.0,
                                                        max_sweeps, rows, cross_products)

@@ -231,3 +231,12 @@ def test_repeated_rows_count_twice(family):
     on_rows = fit_path(np.asfortranarray(X), y, family=family, rows=rows, n_penalties=15)
     copied = fit_path(X[rows], y[rows], family=family, penalties=on_rows.penalties)
     assert np.allclose(on_rows.coef, copied.coef, atol=1e-10)
+
+
+def test_missing_or_infinite_values_in_x_are_refused():
+    X, y = _data(1, "gaussian", n=50, p=3)
+    for bad in (np.nan, np.inf):
+        X2 = X.copy()
+        X2[7, 1] = bad
+        with pytest.raises(ValueError, match="missing or infinite"):
+            fit_path(X2, y)
