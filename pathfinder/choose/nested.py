@@ -157,7 +157,7 @@ def nested_cv(problem: Problem, outer_splits, plan: FoldPlan, *, seed, inner_k=5
     ``seed``), so the result does not depend on where the folds ran.
     ``selectors`` (see :mod:`pathfinder.choose.selectors`) add methods that
     are not a penalty pick, each redone on every outer training set. Inside
-    the outer folds the paths use at most 50 penalties and converge to 1e-5:
+    the outer folds the paths use at most 50 penalties and converge to FOLD_TOL:
     ample for choosing, and it keeps the whole procedure affordable.
     """
     seeds = [int(s.generate_state(1)[0]) for s in np.random.SeedSequence(seed).spawn(len(outer_splits))]
@@ -248,7 +248,7 @@ def held_out_predictions(problem: Problem, splits, choice: Choice, grid) -> np.n
             eta = problem.linear_predictor(np.array([b0]), b[None, :], test)[:, 0]
             out[test] = fam.inverse_link(eta)
             continue
-        fit = problem.fit(rows=train, mix=choice.mix, penalties=steps, tol=1e-5)
+        fit = problem.fit(rows=train, mix=choice.mix, penalties=steps, tol=FOLD_TOL)
         b0, b = fit.intercept[-1], fit.coef[-1]
         if choice.relax is not None:
             r0, r = refit(problem, train, np.flatnonzero(b))
