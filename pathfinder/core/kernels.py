@@ -123,6 +123,37 @@ def _update_naive(X, W, r, beta, j, xvj, l1j, l2j, inv_n):
     return 0.0
 
 
+@njit(cache=True, fastmath=True)
+def _dot_and_norm(W, x, r):
+    """(sum_i W_i x_i r_i, sum_i W_i x_i^2) in one pass over the column."""
+    s = 0.0
+    q = 0.0
+    for i in range(W.shape[0]):
+        wx = W[i] * x[i]
+        s += wx * r[i]
+        q += wx * x[i]
+    return s, q
+
+
+@njit(cache=True)
+def _update_naive_fresh(X, W, r, beta, j, xv, l1j, l2j, inv_n):
+    """As _update_naive, but first computes xv[j] = sum W x_j^2 / n in the same pass."""
+    n = X.shape[0]
+    g, q = _dot_and_norm(W, X[:, j], r)
+    g *= inv_n
+    xvj = q * inv_n
+    xv[j] = xvj
+    old = beta[j]
+    new = _soft(g + xvj * old, l1j) / (xvj + l2j)
+    if new != old:
+        d = new - old
+        beta[j] = new
+        for i in range(n):
+            r[i] -= d * X[i, j]
+        return xvj * d * d
+    return 0.0
+
+
 @njit(cache=True)
 def _update_intercept(W, r, sum_w, inv_n):
     n = W.shape[0]
@@ -137,11 +168,13 @@ def _update_intercept(W, r, sum_w, inv_n):
 
 
 @njit(cache=True)
-def cd_naive(X, W, r, beta, b0, ws, xv, l1, l2, fit_intercept, tol, max_sweeps):
+def cd_naive(X, W, r, beta, b0, ws, xv, l1, l2, fit_intercept, tol, max_sweeps, fresh_norms=False):
     """Coordinate descent with residual updates; updates ``beta`` and ``r`` in place.
 
     ``r`` is the working residual ``z - b0 - X beta`` on entry and on exit;
-    ``xv[j]`` must hold ``sum_i W_i X_ij^2 / n`` for every ``j`` in ``ws``.
+    ``xv[j]`` must hold ``sum_i W_i X_ij^2 / n`` for every ``j`` in ``ws``,
+    unless ``fresh_norms``: then the first sweep computes them on the way, in
+    the same pass over each column as its gradient.
     Returns ``(b0, sweeps)``.
     """
     n = X.shape[0]
@@ -156,7 +189,10 @@ def cd_naive(X, W, r, beta, b0, ws, xv, l1, l2, fit_intercept, tol, max_sweeps):
         n_active = 0
         for k in range(ws.shape[0]):
             j = ws[k]
-            change = _update_naive(X, W, r, beta, j, xv[j], l1[j], l2[j], inv_n)
+            if fresh_norms and sweeps == 0:
+                change = _update_naive_fresh(X, W, r, beta, j, xv, l1[j], l2[j], inv_n)
+            else:
+                change = _update_naive(X, W, r, beta, j, xv[j], l1[j], l2[j], inv_n)
             if change > biggest:
                 biggest = change
             if beta[j] != 0.0:
@@ -186,15 +222,6 @@ def cd_naive(X, W, r, beta, b0, ws, xv, l1, l2, fit_intercept, tol, max_sweeps):
             if biggest < tol:
                 break
     return b0, sweeps
-
-
-@njit(cache=True)
-def weighted_sq_norms(X, W, cols, out):
-    """``out[j] = sum_i W_i X_ij^2 / n`` for ``j`` in ``cols`` (in place)."""
-    n = X.shape[0]
-    for k in range(cols.shape[0]):
-        j = cols[k]
-        out[j] = _dot_weighted(W, X[:, j], X[:, j]) / n
 
 
 # ---- family arithmetic in one pass over the rows -----------------------------

@@ -19,7 +19,7 @@ import numpy as np
 
 from .arrays import empty_aligned
 from .families import Family, null_intercept
-from .kernels import cd_gram, cd_naive, weighted_sq_norms
+from .kernels import cd_gram, cd_naive
 
 BLOCK_BYTES = 32 * 2**20  # X is read in row blocks of about this size
 
@@ -248,10 +248,9 @@ class NaiveSolver:
         for _ in range(self.max_newton):
             W, resid = self.W, self.resid
             r = resid.copy()
-            weighted_sq_norms(self.Xs, W, ws, self.xv)
             beta_old, b0_old, eta_old = self.beta.copy(), self.b0, self.eta
             self.b0, sweeps = cd_naive(self.Xs, W, r, self.beta, self.b0, ws, self.xv,
-                                       l1, l2, True, inner_tol, self.max_sweeps)
+                                       l1, l2, True, inner_tol, self.max_sweeps, True)
             total_sweeps += sweeps
             self._set_eta(eta_old + resid - r)  # z - r, where z = eta_old + resid
             if sweeps >= self.max_sweeps:
