@@ -109,18 +109,23 @@ def _dot_weighted(W, x, r):
 
 
 @njit(cache=True)
-def _update_naive(X, W, r, beta, j, xvj, l1j, l2j, inv_n):
-    n = X.shape[0]
-    g = _dot_weighted(W, X[:, j], r) * inv_n
+def _step(X, r, beta, j, g, xvj, l1j, l2j):
+    """Soft-threshold coordinate j at gradient g; keep r current; return xv_j * change^2."""
     old = beta[j]
     new = _soft(g + xvj * old, l1j) / (xvj + l2j)
-    if new != old:
-        d = new - old
-        beta[j] = new
-        for i in range(n):
-            r[i] -= d * X[i, j]
-        return xvj * d * d
-    return 0.0
+    if new == old:
+        return 0.0
+    d = new - old
+    beta[j] = new
+    for i in range(X.shape[0]):
+        r[i] -= d * X[i, j]
+    return xvj * d * d
+
+
+@njit(cache=True)
+def _update_naive(X, W, r, beta, j, xvj, l1j, l2j, inv_n):
+    g = _dot_weighted(W, X[:, j], r) * inv_n
+    return _step(X, r, beta, j, g, xvj, l1j, l2j)
 
 
 @njit(cache=True, fastmath=True)
@@ -138,20 +143,9 @@ def _dot_and_norm(W, x, r):
 @njit(cache=True)
 def _update_naive_fresh(X, W, r, beta, j, xv, l1j, l2j, inv_n):
     """As _update_naive, but first computes xv[j] = sum W x_j^2 / n in the same pass."""
-    n = X.shape[0]
     g, q = _dot_and_norm(W, X[:, j], r)
-    g *= inv_n
-    xvj = q * inv_n
-    xv[j] = xvj
-    old = beta[j]
-    new = _soft(g + xvj * old, l1j) / (xvj + l2j)
-    if new != old:
-        d = new - old
-        beta[j] = new
-        for i in range(n):
-            r[i] -= d * X[i, j]
-        return xvj * d * d
-    return 0.0
+    xv[j] = q * inv_n
+    return _step(X, r, beta, j, g * inv_n, xv[j], l1j, l2j)
 
 
 @njit(cache=True)
