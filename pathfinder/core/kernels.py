@@ -224,32 +224,59 @@ def cd_naive(X, W, r, beta, b0, ws, xv, l1, l2, fit_intercept, tol, max_sweeps, 
 # sum_i w_i d_i, computed stably from the linear predictor.
 
 
+@njit(cache=True, inline="always")
+def _binomial_row(yi, wi, e, floor):
+    """(w_i * deviance_i / 2, mean, floored variance) of one row, logit link."""
+    t = np.exp(-abs(e))
+    l = np.log1p(t)
+    if e >= 0:
+        m = 1.0 / (1.0 + t)
+        log_m, log_1m = -l, -e - l
+    else:
+        m = t / (1.0 + t)
+        log_m, log_1m = e - l, -l
+    d = -(yi * log_m + (1.0 - yi) * log_1m)
+    if 0.0 < yi < 1.0:
+        d += yi * np.log(yi) + (1.0 - yi) * np.log(1.0 - yi)
+    v = m * (1.0 - m)
+    if v < floor:
+        v = floor
+    return wi * d, m, v
+
+
+@njit(cache=True, inline="always")
+def _poisson_row(yi, wi, e, eta_max):
+    """(w_i * deviance_i / 2, mean, floored variance) of one row, log link."""
+    if e > eta_max:
+        e = eta_max
+    m = np.exp(e)
+    d = m - yi
+    if yi > 0:
+        d += yi * (np.log(yi) - e)
+    v = m if m > 1e-10 else 1e-10
+    return wi * d, m, v
+
+
+@njit(cache=True, inline="always")
+def mean_at(e, binomial, bound):
+    """The mean at linear predictor ``e``, as the ``*_row`` functions give it."""
+    if binomial:
+        t = np.exp(-abs(e))
+        return 1.0 / (1.0 + t) if e >= 0 else t / (1.0 + t)
+    return np.exp(e if e < bound else bound)
+
+
 @njit(cache=True)
 def binomial_evaluate(y, eta, w, prob_eps, W, resid, mu):
     """Logit link; y in [0, 1]. One exp and one log1p per row."""
     floor = prob_eps * (1.0 - prob_eps)
     total = 0.0
     for i in range(y.shape[0]):
-        e = eta[i]
-        t = np.exp(-abs(e))
-        l = np.log1p(t)
-        if e >= 0:
-            m = 1.0 / (1.0 + t)
-            log_m, log_1m = -l, -e - l
-        else:
-            m = t / (1.0 + t)
-            log_m, log_1m = e - l, -l
-        yi = y[i]
-        d = -(yi * log_m + (1.0 - yi) * log_1m)
-        if 0.0 < yi < 1.0:
-            d += yi * np.log(yi) + (1.0 - yi) * np.log(1.0 - yi)
-        total += w[i] * d
-        v = m * (1.0 - m)
-        if v < floor:
-            v = floor
+        d, m, v = _binomial_row(y[i], w[i], eta[i], floor)
+        total += d
         mu[i] = m
         W[i] = w[i] * v
-        resid[i] = (yi - m) / v
+        resid[i] = (y[i] - m) / v
     return 2.0 * total
 
 
@@ -258,15 +285,204 @@ def poisson_evaluate(y, eta, w, eta_max, W, resid, mu):
     """Log link. One exp per row (log y is needed only where y > 0)."""
     total = 0.0
     for i in range(y.shape[0]):
-        e = eta[i] if eta[i] < eta_max else eta_max
-        m = np.exp(e)
-        yi = y[i]
-        d = m - yi
-        if yi > 0:
-            d += yi * (np.log(yi) - e)
-        total += w[i] * d
-        v = m if m > 1e-10 else 1e-10
+        d, m, v = _poisson_row(y[i], w[i], eta[i], eta_max)
+        total += d
         mu[i] = m
         W[i] = w[i] * v
-        resid[i] = (yi - m) / v
+        resid[i] = (y[i] - m) / v
     return 2.0 * total
+
+
+# ---- one pass over the rows for the Newton solver of large tables ------------
+
+PASS_ROWS = 256  # rows per block: a block of the columns read stays in cache
+
+
+@njit(cache=True, nogil=True, fastmath=True)
+def _add_columns(e, X, cols, coef, center, start, stop):
+    """``e += (X[start:stop, cols] - center[cols]) @ coef[cols]``, four columns per pass over ``e``."""
+    m = stop - start
+    k = cols.shape[0]
+    a = 0
+    while a + 4 <= k:
+        j0, j1, j2, j3 = cols[a], cols[a + 1], cols[a + 2], cols[a + 3]
+        b0, b1, b2, b3 = coef[j0], coef[j1], coef[j2], coef[j3]
+        c0, c1, c2, c3 = center[j0], center[j1], center[j2], center[j3]
+        x0, x1 = X[start:stop, j0], X[start:stop, j1]
+        x2, x3 = X[start:stop, j2], X[start:stop, j3]
+        for i in range(m):
+            e[i] += b0 * (x0[i] - c0) + b1 * (x1[i] - c1) + b2 * (x2[i] - c2) + b3 * (x3[i] - c3)
+        a += 4
+    while a < k:
+        j = cols[a]
+        bj, cj = coef[j], center[j]
+        x = X[start:stop, j]
+        for i in range(m):
+            e[i] += bj * (x[i] - cj)
+        a += 1
+
+
+@njit(cache=True, nogil=True, fastmath=True)
+def _add_products(out, X, cols, center, score, start, stop):
+    """``out[k] += (X[start:stop, cols[k]] - center[cols[k]]) @ score``, four columns at a time.
+
+    The sums are vectorised in lanes by index (see _dot_weighted), so their
+    rounding does not depend on where the arrays sit in memory.
+    """
+    m = stop - start
+    k = cols.shape[0]
+    a = 0
+    while a + 4 <= k:
+        x0, x1 = X[start:stop, cols[a]], X[start:stop, cols[a + 1]]
+        x2, x3 = X[start:stop, cols[a + 2]], X[start:stop, cols[a + 3]]
+        c0, c1, c2, c3 = center[cols[a]], center[cols[a + 1]], center[cols[a + 2]], center[cols[a + 3]]
+        s0 = s1 = s2 = s3 = 0.0
+        for i in range(m):
+            si = score[i]
+            s0 += (x0[i] - c0) * si
+            s1 += (x1[i] - c1) * si
+            s2 += (x2[i] - c2) * si
+            s3 += (x3[i] - c3) * si
+        out[a] += s0
+        out[a + 1] += s1
+        out[a + 2] += s2
+        out[a + 3] += s3
+        a += 4
+    while a < k:
+        x = X[start:stop, cols[a]]
+        c = center[cols[a]]
+        s = 0.0
+        for i in range(m):
+            s += (x[i] - c) * score[i]
+        out[a] += s
+        a += 1
+
+
+@njit(cache=True, nogil=True)
+def glm_pass(X, center, coef, b0, offset, y, w, active, gcols, binomial, bound, with_deviance,
+             lo, hi, eta, grad, anchor, track):
+    """Rows ``lo:hi``: linear predictor from scratch, family arithmetic, gradient.
+
+    With ``Xc = X - center`` (column by column, on the fly: X itself is never
+    copied), ``eta = offset + b0 + Xc[:, active] @ coef[active]``; then the
+    means (and, if ``with_deviance``, the deviances: a log per row) as in the
+    ``*_evaluate`` kernels; then
+    ``grad[k] += sum_i Xc[i, gcols[k]] * w_i (y_i - mu_i)`` and, in the last
+    slot, the same sum for the intercept. An empty ``offset`` stands for
+    zeros and empty weights ``w`` for ones. Rows go in blocks of ``PASS_ROWS``,
+    so each block of X comes from memory once and is reused from cache.
+
+    ``anchor`` holds the scores ``w_i (y_i - mu_i)`` of an earlier point:
+    ``track == 1`` sums the squared distance to them, ``track == 2`` stores
+    the present scores there instead, ``track == 0`` leaves them alone.
+    Returns the weighted deviance of the rows (``sum w_i d_i``, or 0 without
+    ``with_deviance``) and that squared distance.
+    """
+    total = 0.0
+    drift = 0.0
+    kg = gcols.shape[0]
+    score = np.empty(PASS_ROWS)
+    for start in range(lo, hi, PASS_ROWS):
+        stop = min(start + PASS_ROWS, hi)
+        m = stop - start
+        e = eta[start:stop]
+        if offset.shape[0]:
+            for i in range(m):
+                e[i] = offset[start + i] + b0
+        else:
+            e[:] = b0
+        _add_columns(e, X, active, coef, center, start, stop)
+        s0 = 0.0
+        for i in range(m):
+            r = start + i
+            wr = w[r] if w.shape[0] else 1.0
+            if not with_deviance:
+                mean = mean_at(e[i], binomial, bound)
+            elif binomial:
+                d, mean, v = _binomial_row(y[r], wr, e[i], bound)
+                total += d
+            else:
+                d, mean, v = _poisson_row(y[r], wr, e[i], bound)
+                total += d
+            score[i] = wr * (y[r] - mean)
+            s0 += score[i]
+            if track == 1:
+                gap = score[i] - anchor[r]
+                drift += gap * gap
+            elif track == 2:
+                anchor[r] = score[i]
+        _add_products(grad, X, gcols, center, score, start, stop)
+        grad[kg] += s0
+    return 2.0 * total, drift
+
+
+# ---- the standardised copy -----------------------------------------------------
+
+
+@njit(cache=True, nogil=True, fastmath=True)
+def centre_column(X, rows, j, mean, w, out):
+    """``out = X[rows, j] - mean`` (all rows when ``rows`` is empty); returns
+    ``sum w out^2 / n`` and ``sum out^2 / n``."""
+    n = out.shape[0]
+    s = 0.0
+    q = 0.0
+    if rows.shape[0] == 0:
+        for i in range(n):
+            out[i] = X[i, j] - mean
+    else:
+        for i in range(n):
+            out[i] = X[rows[i], j] - mean
+    for i in range(n):
+        v = out[i]
+        s += w[i] * (v * v)
+        q += v * v
+    return s / n, q / n
+
+
+@njit(cache=True, nogil=True)
+def divide_column(x, by):
+    for i in range(x.shape[0]):
+        x[i] /= by
+
+
+@njit(cache=True, nogil=True, fastmath=True)
+def column_spread(X, j, mean, w):
+    """``sum_i w_i (X[i, j] - mean)^2 / n`` and the same without weights, no copy made.
+
+    The sums are vectorised in lanes by index (see _dot_weighted)."""
+    n = X.shape[0]
+    s = 0.0
+    q = 0.0
+    for i in range(n):
+        v = X[i, j] - mean
+        s += w[i] * (v * v)
+        q += v * v
+    return s / n, q / n
+
+
+@njit(cache=True, nogil=True)
+def glm_deviance(y, w, eta, binomial, bound, lo, hi):
+    """Weighted deviance ``sum w_i d_i`` of rows ``lo:hi`` at linear predictor ``eta``."""
+    total = 0.0
+    for r in range(lo, hi):
+        if binomial:
+            d, mean, v = _binomial_row(y[r], w[r], eta[r], bound)
+        else:
+            d, mean, v = _poisson_row(y[r], w[r], eta[r], bound)
+        total += d
+    return 2.0 * total
+
+
+@njit(cache=True, nogil=True)
+def weighted_sample(X, rows, cols, center, inv_scale, root, out):
+    """``out[:, k] = (X[rows, j] - center[j]) * inv_scale[j] * root`` for ``j = cols[k]``;
+    ``j = X.shape[1]`` stands for a column of ones (the intercept)."""
+    for k in range(cols.shape[0]):
+        j = cols[k]
+        if j == X.shape[1]:
+            for i in range(rows.shape[0]):
+                out[i, k] = root[i]
+        else:
+            c, s = center[j], inv_scale[j]
+            for i in range(rows.shape[0]):
+                out[i, k] = (X[rows[i], j] - c) * s * root[i]

@@ -45,13 +45,16 @@ import pandas as pd
 
 from ..errors import FitWarning
 from .families import get_family
-from .solvers import GramSolver, NaiveSolver, standardised_copy, weighted_mean
+from .solvers import (GramSolver, NaiveSolver, NewtonGramSolver, blas_threads, column_scales,
+                      standardised_copy, weighted_mean)
 
 MIX_FLOOR = 1e-3          # mix used for lam_max when mix is (near) 0
 SMALL_CHANGE = 1e-5       # early stop: relative rise in deviance explained
 SATURATED = 0.999         # early stop: deviance explained
 MIN_STEPS_BEFORE_STOP = 5
 GRAM_MAX_TERMS = 500      # Gaussian uses the Gram matrix when n > p and p <= this
+LONG_TABLE_ROWS = 20_000  # binomial / Poisson use Newton-Gram steps from this many rows ...
+LONG_TABLE_RATIO = 20     # ... when there are also at least this many rows per column
 
 
 @dataclass(frozen=True)
@@ -228,6 +231,8 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     _check_response(fam.name, y)
 
     use_gram = fam.name == "gaussian" and n > p and p <= GRAM_MAX_TERMS
+    long_table = (fam.name != "gaussian" and n >= LONG_TABLE_ROWS and n >= LONG_TABLE_RATIO * p
+                  and p <= GRAM_MAX_TERMS)
     mean = weighted_mean(X, w, rows)
     if not np.all(np.isfinite(mean)):   # a NaN or infinity anywhere in the rows used spreads here
         raise ValueError("X contains missing or infinite values")
@@ -235,8 +240,18 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
         solver, scale, constant = GramSolver.from_data(X, y, w, offset, mean, standardize, 1.0,
                                                        max_sweeps, rows, cross_products)
     else:
-        Xs, scale, constant = standardised_copy(X, mean, w, standardize, rows)
-        solver = NaiveSolver(Xs, y, w, offset, fam, 1.0, max_sweeps)
+        threads = blas_threads() if n * p >= 2**22 else 1
+        if long_table and rows is None and _readable_in_place(X):
+            scale, constant, squares = column_scales(X, mean, w, standardize, threads)
+            solver = NewtonGramSolver(X, mean, scale, squares, y, w, offset, fam, 1.0, max_sweeps,
+                                      threads=threads)
+        else:
+            Xs, scale, constant, squares = standardised_copy(X, mean, w, standardize, rows, threads)
+            if long_table:
+                solver = NewtonGramSolver(Xs, np.zeros(p), np.ones(p), squares, y, w, offset, fam,
+                                          1.0, max_sweeps, threads=threads)
+            else:
+                solver = NaiveSolver(Xs, y, w, offset, fam, 1.0, max_sweeps)
     usable = ~constant
     penalised = usable & (v > 0)
     if not penalised.any():
@@ -297,7 +312,7 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
                 unconverged.append(k)
             if hasattr(solver, "refresh"):
                 solver.refresh()
-            grad = solver.gradient().copy()
+            grad = solver.gradient(limit=l1).copy()
             violators = usable & ~ws_mask & (np.abs(grad) > l1 * (1 + 1e-9))
             if not violators.any():
                 break
@@ -342,6 +357,11 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
         kkt_refits=np.array(out["refits"]), center=mean, scale=scale, term_weights=v,
         n_obs=n, standardize=bool(standardize), stop_reason=stop_reason, warnings=tuple(issues),
     )
+
+
+def _readable_in_place(X):
+    """Can the long-table solver read X as it is (standardising on the fly)?"""
+    return X.dtype in (np.float32, np.float64) and X.flags.f_contiguous
 
 
 def _kkt_violation(grad, beta, l1, l2, usable):

@@ -11,15 +11,25 @@ rules and the KKT check) and (c) report the deviance. The path driver in
 * :class:`NaiveSolver` any family: IRLS (Newton) outer loop with
   coordinate descent on one standardised copy of X inside, step halving when
   the penalised objective does not decrease.
+* :class:`NewtonGramSolver` binomial and Poisson on long tables (n >> p):
+  Newton steps whose quadratic model uses the weighted Gram matrix of the
+  working set, estimated from an evenly spread sample of rows and kept while
+  it still converges fast; each step then costs one pass over the working
+  set's columns of X.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
+from concurrent.futures import ThreadPoolExecutor
+
+from scipy.special import expit
+
 from .arrays import empty_aligned
-from .families import Family, null_intercept
-from .kernels import cd_gram, cd_naive
+from .families import _ETA_MAX, _PROB_EPS, Family, null_intercept
+from .kernels import (PASS_ROWS, cd_gram, cd_naive, centre_column, column_spread, divide_column,
+                      glm_deviance, glm_pass, weighted_sample)
 
 BLOCK_BYTES = 32 * 2**20  # X is read in row blocks of about this size
 
@@ -130,24 +140,51 @@ def centred_gram(X, w, mean, z, rows=None, XtX=None):
     return G / n, c / n
 
 
-def standardised_copy(X, mean, w, standardize, rows=None):
+def standardised_copy(X, mean, w, standardize, rows=None, threads=1):
     """One Fortran-ordered float64 copy of X's rows, centred and scaled in place.
 
-    Returns the copy, the scales and the flags of columns with no spread.
+    Each column is read, centred and its variance summed in one compiled
+    pass, then scaled while it is still in cache; ``threads`` columns are
+    done at a time. Returns the copy, the scales, the flags of columns with
+    no spread and the mean squares of the copy's columns (unweighted).
     """
     p = X.shape[1]
     n = X.shape[0] if rows is None else len(rows)
     Xs = empty_aligned((n, p), "F")
-    var = np.empty(p)
-    for j in range(p):
-        Xs[:, j] = X[:, j] if rows is None else X[rows, j]
-        Xs[:, j] -= mean[j]
-        var[j] = w @ (Xs[:, j] * Xs[:, j]) / n
-    scale, constant = scale_from_variance(var, mean, standardize)
-    for j in range(p):
+    scale, constant, squares = np.ones(p), np.zeros(p, dtype=bool), np.empty(p)
+    take = np.arange(0) if rows is None else np.asarray(rows, dtype=np.int64)
+
+    def one(j):
+        var, squares[j] = centre_column(X, take, j, mean[j], w, Xs[:, j])
+        sd, flat = scale_from_variance(np.array([var]), mean[j:j + 1], standardize)
+        scale[j], constant[j] = sd[0], flat[0]
         if scale[j] != 1.0:
-            Xs[:, j] /= scale[j]
-    return Xs, scale, constant
+            divide_column(Xs[:, j], scale[j])
+
+    _each_column(one, p, threads if n * p >= 2**20 else 1)
+    return Xs, scale, constant, squares / scale**2
+
+
+def column_scales(X, mean, w, standardize, threads=1):
+    """As :func:`standardised_copy` without the copy: X is read in place."""
+    p = X.shape[1]
+    var, squares = np.empty(p), np.empty(p)
+
+    def one(j):
+        var[j], squares[j] = column_spread(X, j, mean[j], w)
+
+    _each_column(one, p, threads)
+    scale, constant = scale_from_variance(var, mean, standardize)
+    return scale, constant, squares / scale**2
+
+
+def _each_column(work, p, threads):
+    if threads > 1:
+        with ThreadPoolExecutor(threads) as pool:
+            list(pool.map(work, range(p)))
+    else:
+        for j in range(p):
+            work(j)
 
 
 def penalty_value(beta, l1, l2):
@@ -190,7 +227,7 @@ class GramSolver:
         sweeps = cd_gram(self.G, self.grad, self.beta, ws, l1, l2, self.tol, self.max_sweeps)
         return sweeps, sweeps < self.max_sweeps
 
-    def gradient(self):
+    def gradient(self, limit=None):
         return self.grad
 
     def deviance(self):
@@ -277,7 +314,7 @@ class NaiveSolver:
         """Recompute the linear predictor from the coefficients (drops round-off)."""
         self._set_eta(self.b0 + self.Xs @ self.beta + self.offset)
 
-    def gradient(self):
+    def gradient(self, limit=None):
         return self.Xs.T @ (self.w * (self.y - self.mu)) / self.n
 
     def deviance(self):
@@ -285,3 +322,347 @@ class NaiveSolver:
 
     def null_deviance(self):
         return self._null_deviance
+
+
+HESSIAN_ROWS = 100_000    # the Newton solver's Gram matrix comes from about this many rows at most
+SAMPLE_PIECE = 1024       # ... read in pieces of this many consecutive rows
+CHUNK_ROWS = 256 * PASS_ROWS  # a pass sums its gradient in pieces of this many rows, in order
+SLOW_RATE = 0.05          # refresh the Gram matrix when a Newton step shrinks the change less than this
+
+
+def blas_threads() -> int:
+    """Threads the linear-algebra library may use here (1 inside our workers)."""
+    from threadpoolctl import threadpool_info
+
+    counts = [m.get("num_threads") or 1 for m in threadpool_info() if m.get("user_api") == "blas"]
+    return max(1, min(counts)) if counts else 1
+
+
+class NewtonGramSolver:
+    """Binomial and Poisson, n >> p: Newton steps on the working set's weighted Gram matrix.
+
+    The penalised Newton step minimises the quadratic model
+
+        -g' d + d' H d / 2 + penalty(beta + d)
+
+    over the working set and the intercept, where ``g`` is the exact gradient
+    of the log-likelihood (one pass over the rows) and ``H = X'WX / n`` the
+    weighted Gram matrix. Coordinate descent on ``H`` (:func:`cd_gram`) costs
+    nothing in n. ``H`` is only a metric for the step: any positive definite
+    ``H`` has the same fixed point, the penalised maximum-likelihood fit. So it
+    is estimated from an evenly spread sample of at most ``HESSIAN_ROWS`` rows,
+    corrected after each step by the change of the exact gradient along it (a
+    BFGS update), and kept across steps and penalties until a step shrinks the
+    change by less than ``SLOW_RATE``; then it is rebuilt at the current
+    weights. Rows for new terms are added at the weights it was built with.
+
+    Each step is one pass over the rows (:func:`glm_pass`): the linear
+    predictor from scratch (so no round-off builds up), the means and the
+    gradient of the working set, in pieces of ``CHUNK_ROWS`` rows that are
+    summed in a fixed order, so results do not depend on the number of
+    threads. The deviance (a log per row) is computed only when asked for.
+    Should a step make the change grow, the solver goes back, rebuilds ``H``
+    and continues with steps that are halved until the penalised objective
+    falls, as :class:`NaiveSolver` does.
+
+    Iterations stop when a step's weighted squared change is below ``tol``,
+    or when the last two steps shrink fast enough that the next one would be
+    below ``tol / 100``.
+    """
+
+    def __init__(self, X, center, scale, squares, y, w, offset, family: Family, tol, max_sweeps,
+                 max_newton=100, threads=1):
+        self.X = X                      # read as (X - center) / scale, never copied
+        self.center = np.asarray(center, dtype=np.float64)
+        self.inv_scale = 1.0 / np.asarray(scale, dtype=np.float64)
+        self.col_norm = np.sqrt(squares)     # root mean square of each column as read
+        self.y, self.w, self.offset = y, w, offset
+        none = np.zeros(0)       # the passes skip reading a zero offset and unit weights
+        self._offset = offset if np.any(offset) else none
+        self._w = none if np.all(w == 1.0) else w
+        self.family = family
+        self.n, self.p = X.shape
+        self.binomial = family.name == "binomial"
+        self.bound = _PROB_EPS * (1 - _PROB_EPS) if self.binomial else _ETA_MAX
+        self.tol = tol
+        self.max_sweeps = max_sweeps
+        self.max_newton = max_newton
+        self.threads = threads
+        self.loose_tol = 0.0
+        self.step_halvings = self.hessian_builds = self.secant_updates = self.passes = 0
+        self.beta = np.zeros(self.p)
+        self.b0 = null_intercept(family, y, w, offset)
+        self.eta = np.empty(self.n)
+        self.grad = np.zeros(self.p + 1)           # last slot: the intercept
+        self.grad_known = np.zeros(self.p + 1, dtype=bool)
+        self.dev = None                            # deviance at the current point, once computed
+        self.anchor = np.empty(self.n)             # scores where every gradient was last computed
+        self.anchor_grad = None                    # ... and those gradients
+        self.drift = np.inf                        # RMS distance of the scores from the anchor
+        self.sample = sample_rows(self.n, HESSIAN_ROWS)
+        self.H = np.zeros((self.p + 1, self.p + 1))
+        self.in_H = np.zeros(self.p + 1, dtype=bool)
+        self.H_weights = None
+        small = 4 * self.sample.shape[0] <= self.n
+        self.kept = empty_aligned((self.sample.shape[0], self.p + 1), "F") if small else None
+        self.slot = np.full(self.p + 1, -1)      # column of ``kept`` holding each term
+        self.n_kept = 0
+        self._pass(np.arange(self.p, dtype=np.int64), with_deviance=True)
+        self._null_deviance = self.dev
+
+    @property
+    def intercept(self):
+        return self.b0
+
+    # ---- passes over the rows ---------------------------------------------
+    def _chunks(self, work):
+        """Run ``work(c, lo, hi)`` over the pieces of rows, on ``threads`` threads."""
+        starts = range(0, self.n, CHUNK_ROWS)
+        jobs = [(c, lo, min(lo + CHUNK_ROWS, self.n)) for c, lo in enumerate(starts)]
+        if self.threads > 1 and len(jobs) > 1:
+            with ThreadPoolExecutor(self.threads) as pool:
+                list(pool.map(lambda job: work(*job), jobs))
+        else:
+            for job in jobs:
+                work(*job)
+
+    def _pass(self, gcols, with_deviance=False):
+        """Move to the current coefficients: means, gradient on ``gcols`` (and the deviance).
+
+        A pass over every column also makes the present point the anchor of
+        the gradient bounds (see :meth:`gradient`); other passes measure how
+        far the scores have moved from it.
+        """
+        active = np.flatnonzero(self.beta).astype(np.int64)
+        coef = self.beta * self.inv_scale
+        k = gcols.shape[0]
+        full = k == self.p
+        track = 2 if full else (1 if self.anchor_grad is not None else 0)
+        count = -(-self.n // CHUNK_ROWS)
+        parts = np.zeros((count, k + 1))
+        devs, drifts = np.zeros(count), np.zeros(count)
+
+        def work(c, lo, hi):
+            devs[c], drifts[c] = glm_pass(
+                self.X, self.center, coef, self.b0, self._offset, self.y, self._w, active, gcols,
+                self.binomial, self.bound, with_deviance, lo, hi, self.eta, parts[c],
+                self.anchor, track)
+
+        self._chunks(work)
+        self.passes += 1
+        self.dev = float(devs.sum()) if with_deviance else None
+        total = parts.sum(axis=0) / self.n
+        self.grad_known[:] = False
+        self.grad[gcols] = total[:k] * self.inv_scale[gcols]
+        self.grad[self.p] = total[k]
+        self.grad_known[gcols] = True
+        self.grad_known[self.p] = True
+        if full:
+            self.anchor_grad = self.grad[: self.p].copy()
+            self.drift = 0.0
+        elif track == 1:
+            self.drift = float(np.sqrt(drifts.sum() / self.n))
+
+    def _uncertain(self, limit, unknown=None):
+        """Columns whose gradient is unknown here and might exceed ``limit`` in size.
+
+        The gradient of column j moves from its value at the anchor by at most
+        (Cauchy-Schwarz) its root mean square times the RMS change of the
+        scores, so columns far enough below ``limit`` need no pass.
+        """
+        if unknown is None:
+            unknown = ~self.grad_known[: self.p]
+        if limit is None or self.anchor_grad is None or not np.isfinite(self.drift):
+            return unknown
+        reach = np.abs(self.anchor_grad) + self.col_norm * self.drift * (1 + 1e-6)
+        return unknown & ~(reach <= np.asarray(limit) * (1 - 1e-9))
+
+    def gradient(self, limit=None):
+        """Gradient of every term at the present point.
+
+        With ``limit`` (per term), a term whose bound shows ``|g_j| <= limit_j``
+        keeps its value at the anchor instead of being computed: it cannot
+        exceed the limit, which is all the KKT check asks of it.
+        """
+        need = self._uncertain(limit)
+        if need.any():
+            known, values = self.grad_known.copy(), self.grad.copy()
+            cols = (np.arange(self.p) if 3 * need.sum() > self.p else np.flatnonzero(need))
+            self._pass(cols.astype(np.int64))      # the same point: only adds columns
+            self.grad[known] = values[known]
+            self.grad_known |= known
+        out = self.grad[: self.p].copy()
+        stale = ~self.grad_known[: self.p]
+        out[stale] = self.anchor_grad[stale]
+        return out
+
+    def deviance(self):
+        if self.dev is None:
+            devs = np.zeros(-(-self.n // CHUNK_ROWS))
+
+            def work(c, lo, hi):
+                devs[c] = glm_deviance(self.y, self.w, self.eta, self.binomial, self.bound, lo, hi)
+
+            self._chunks(work)
+            self.dev = float(devs.sum())
+        return self.dev
+
+    def null_deviance(self):
+        return self._null_deviance
+
+    def _objective(self, l1, l2):
+        return self.deviance() / (2 * self.n) + penalty_value(self.beta, l1, l2)
+
+    # ---- the Gram matrix ----------------------------------------------------
+    def _working_weights(self, rows):
+        """IRLS weights ``w V(mu)`` at ``rows``, the variance floored as in :meth:`Family.evaluate`."""
+        eta = self.eta[rows]
+        if self.binomial:
+            mu = expit(eta)
+            v = np.maximum(mu * (1 - mu), self.bound)
+        else:
+            v = np.maximum(np.exp(np.minimum(eta, self.bound)), 1e-10)
+        return self.w[rows] * v
+
+    def _gram(self, cols, fresh):
+        """Make ``H`` hold ``X'WX / n`` (sample estimate) for ``cols`` (intercept = p).
+
+        When the sample is at most a quarter of the rows, its standardised,
+        weighted columns are kept once read, so a term that joins the working
+        set costs the reading of its own column only.
+        """
+        if fresh or self.H_weights is None:
+            self.H_weights = self._working_weights(self.sample)
+            self.in_H[:] = False
+            self.hessian_builds += 1
+            self.slot[:] = -1
+            self.n_kept = 0
+        new = cols[~self.in_H[cols]]
+        if new.size == 0:
+            return
+        block = self._sample_block(new, cols)
+        self.H[np.ix_(new, cols)] = block
+        self.H[np.ix_(cols, new)] = block.T
+        self.in_H[new] = True
+
+    def _sample_block(self, new, cols):
+        """``Z[:, new]' Z[:, cols] / m`` for ``Z``, the weighted, standardised sample."""
+        root = np.sqrt(self.H_weights)
+        if self.kept is None:          # read the sample afresh, a piece at a time
+            block = np.zeros((new.shape[0], cols.shape[0]))
+            pos = np.searchsorted(cols, new)
+            A = empty_aligned((SAMPLE_PIECE, cols.shape[0]), "F")
+            for start in range(0, self.sample.shape[0], SAMPLE_PIECE):
+                rows = self.sample[start:start + SAMPLE_PIECE]
+                part = A[: rows.shape[0]]
+                weighted_sample(self.X, rows, cols, self.center, self.inv_scale,
+                                root[start:start + SAMPLE_PIECE], part)
+                block += part.T @ part if new.shape[0] == cols.shape[0] else part[:, pos].T @ part
+            return block / self.sample.shape[0]
+        Z = self.kept                  # read only the columns not kept yet, kept side by side
+        missing = cols[self.slot[cols] < 0]
+        if missing.size:
+            first = self.n_kept
+            self.n_kept += missing.shape[0]
+            weighted_sample(self.X, self.sample, missing, self.center, self.inv_scale, root,
+                            Z[:, first:self.n_kept])
+            self.slot[missing] = np.arange(first, self.n_kept)
+        block = Z[:, self.slot[new]].T @ Z[:, : self.n_kept]
+        return block[:, self.slot[cols]] / Z.shape[0]
+
+    def _secant(self, cols, G, s, yv):
+        """BFGS update of ``H`` on ``cols`` so that ``H s = yv``, the change in the gradient.
+
+        The step just taken and the change of the exact gradient along it
+        correct the sampled matrix in the direction the fit is moving
+        (Nocedal & Wright 2006, section 6.1); skipped unless ``s'yv > 0``,
+        which keeps ``H`` positive definite.
+        """
+        Hs = G @ s
+        sHs = float(s @ Hs)
+        sy = float(s @ yv)
+        if sy <= 1e-8 * np.sqrt(float(s @ s) * float(yv @ yv)) or sHs <= 0:
+            return
+        self.H[np.ix_(cols, cols)] = G + np.outer(yv, yv) / sy - np.outer(Hs, Hs) / sHs
+        self.secant_updates += 1
+
+    # ---- one penalty ----------------------------------------------------------
+    def solve(self, l1, l2, ws):
+        p = self.p
+        cols = np.append(np.sort(ws), p).astype(np.int64)
+        k = cols.shape[0]
+        l1s = np.append(l1[cols[:-1]], 0.0)
+        l2s = np.append(l2[cols[:-1]], 0.0)
+        if not self.grad_known[cols].all():
+            self._pass(cols[:-1])
+        self._gram(cols, fresh=False)
+        everything = np.arange(p, dtype=np.int64)
+        total_sweeps = 0
+        previous = None          # the last step's change, while H is kept
+        careful = False          # halve steps until the objective falls
+        objective = None
+        for _ in range(self.max_newton):
+            G = np.ascontiguousarray(self.H[np.ix_(cols, cols)])
+            g = self.grad[cols].copy()
+            old = np.append(self.beta[cols[:-1]], self.b0)
+            b = old.copy()
+            sweeps = cd_gram(G, g, b, np.arange(k, dtype=np.int64), l1s, l2s,
+                             1e-3 * self.tol, self.max_sweeps)
+            total_sweeps += sweeps
+            if sweeps >= self.max_sweeps:
+                return total_sweeps, False
+            delta = b - old
+            change = float(np.max(np.diag(G) * delta * delta))
+            g_old = self.grad[cols].copy()
+            # the pass computes the working set's gradient, and when this step
+            # is probably the last, that of every term the KKT check may need
+            last = previous is not None and change * change / previous < 0.01 * self.tol
+            gcols = cols[:-1]
+            if last:
+                extra = self._uncertain(l1, np.ones(p, dtype=bool))
+                extra[gcols] = True
+                gcols = everything if 3 * extra.sum() > p else np.flatnonzero(extra).astype(np.int64)
+            self._set(cols, old + delta, gcols, with_deviance=last or careful)
+            if careful:
+                new_objective = self._objective(l1, l2)
+                halvings = 0
+                while new_objective > objective * (1 + 1e-12) + 1e-15 and halvings < 30:
+                    delta *= 0.5
+                    self._set(cols, old + delta, gcols, with_deviance=True)
+                    new_objective = self._objective(l1, l2)
+                    halvings += 1
+                self.step_halvings += halvings
+                objective = new_objective
+                change = float(np.max(np.diag(G) * delta * delta))
+            elif previous is not None and change > previous:
+                # the change grew: go back, rebuild H, halve from here on
+                self._set(cols, old, cols[:-1])
+                objective = self._objective(l1, l2)
+                self._gram(cols, fresh=True)
+                careful, previous = True, None
+                continue
+            if change < self.tol or last:
+                return total_sweeps, True
+            if previous is not None and change > SLOW_RATE ** 2 * previous:
+                self._gram(cols, fresh=True)
+                previous = None
+            else:
+                self._secant(cols, G, delta, g_old - self.grad[cols])
+                previous = change
+        return total_sweeps, False
+
+    def _set(self, cols, b, gcols, with_deviance=False):
+        self.beta[cols[:-1]] = b[:-1]
+        self.b0 = float(b[-1])
+        self._pass(gcols, with_deviance)
+
+
+def sample_rows(n, size):
+    """About ``size`` of the rows 0..n-1 (all when n <= size), in pieces of
+    ``SAMPLE_PIECE`` consecutive rows spread evenly over the table: a fixed
+    choice, and cheap to read from a column-ordered copy."""
+    if n <= size:
+        return np.arange(n, dtype=np.int64)
+    pieces = max(1, size // SAMPLE_PIECE)
+    starts = (np.arange(pieces) * (n - SAMPLE_PIECE)) // max(pieces - 1, 1)
+    return (starts[:, None] + np.arange(SAMPLE_PIECE)[None, :]).ravel().astype(np.int64)
