@@ -72,6 +72,13 @@ def bootstrap_fit(shared, task):
     return {"index": index, "coef": coef, "residual_sd": float(np.std(shared.y[rows] - shared.x[rows] @ coef))}
 
 
+def long_table_half_fit(problem, task):
+    """A binomial lasso path on half the rows of a long table (the long-table solver)."""
+    rng = np.random.default_rng(task)
+    rows = np.sort(rng.choice(problem.n, problem.n // 2, replace=False))
+    return problem.fit(rows=rows, n_penalties=8, tol=1e-4).coef
+
+
 def where_and_how_often(shared, task):
     """Which process ran the task, and how often that process received the shared data."""
     return os.getpid(), _UNPICKLED[shared.label], task
@@ -150,6 +157,24 @@ def test_results_identical_in_task_order_on_every_backend(dask_cluster):
     # The client handed in is still usable: only clients we create are closed.
     assert client.status == "running"
     assert client.submit(sum, [1, 2]).result() == 3
+
+
+def test_long_table_fits_identical_on_every_backend(dask_cluster):
+    # Half-samples of 24,000 rows: fitted by Newton steps on a sampled Gram
+    # matrix, with passes summed in fixed pieces of rows. The data travel as
+    # a Problem, which places its arrays on 64-byte boundaries on arrival.
+    from pathfinder.choose.cv import Problem
+
+    cluster, client = dask_cluster
+    rng = np.random.default_rng(7)
+    x = np.asfortranarray(rng.normal(size=(48_000, 12)) * 3 + 10)
+    y = (rng.random(48_000) < 1 / (1 + np.exp(-(x[:, 0] - x[:, 1]) / 3))).astype(float)
+    shared = Problem(x, y, "binomial", tuple(f"x{j}" for j in range(12)))
+    runs = [run_tasks(long_table_half_fit, [1, 2, 3], shared, backend)
+            for backend in (Backend(), Backend(jobs=2), Backend(cluster=client))]
+    assert not np.array_equal(runs[0][0], runs[0][1])     # different halves, different fits
+    for other in runs[1:]:
+        assert all(np.array_equal(a, b) for a, b in zip(runs[0], other))
 
 
 def test_shared_data_reach_each_local_worker_once():

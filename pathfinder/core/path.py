@@ -30,6 +30,11 @@ The path
   exceeds 0.999 (a saturated fit: for presence/absence data this means the
   classes are separated and the coefficients would run off to infinity), and
   says so in a warning.
+* The solver (see :mod:`pathfinder.core.solvers`): Gram-matrix coordinate
+  descent for Gaussian responses with n > p; for binomial and Poisson
+  responses, Newton steps on a sampled Gram matrix on long tables
+  (``LONG_TABLE_ROWS`` rows or more and ``LONG_TABLE_RATIO`` rows per
+  column), IRLS with coordinate descent otherwise.
 * Sequential strong rules (Tibshirani et al. 2012) choose the working set;
   after each fit every term outside it is checked against the KKT conditions
   and the fit is repeated with any violator added.

@@ -327,6 +327,7 @@ class NaiveSolver:
 HESSIAN_ROWS = 100_000    # the Newton solver's Gram matrix comes from about this many rows at most
 SAMPLE_PIECE = 1024       # ... read in pieces of this many consecutive rows
 CHUNK_ROWS = 256 * PASS_ROWS  # a pass sums its gradient in pieces of this many rows, in order
+FRESH_TERMS = 16
 SLOW_RATE = 0.05          # refresh the Gram matrix when a Newton step shrinks the change less than this
 
 
@@ -595,7 +596,7 @@ class NewtonGramSolver:
         l2s = np.append(l2[cols[:-1]], 0.0)
         if not self.grad_known[cols].all():
             self._pass(cols[:-1])
-        self._gram(cols, fresh=False)
+        self._gram(cols, fresh=k <= FRESH_TERMS)
         everything = np.arange(p, dtype=np.int64)
         total_sweeps = 0
         previous = None          # the last step's change, while H is kept
