@@ -58,7 +58,7 @@ SMALL_CHANGE = 1e-5       # early stop: relative rise in deviance explained
 SATURATED = 0.999         # early stop: deviance explained
 MIN_STEPS_BEFORE_STOP = 5
 GRAM_MAX_TERMS = 500      # Gaussian uses the Gram matrix when n > p and p <= this
-LONG_TABLE_ROWS = 20_000  # binomial / Poisson use Newton-Gram steps from this many rows ...
+LONG_TABLE_ROWS = 2_000   # binomial / Poisson use Newton-Gram steps from this many rows ...
 LONG_TABLE_RATIO = 20     # ... when there are also at least this many rows per column
 
 

@@ -15,7 +15,7 @@ import pytest
 import statsmodels.api as sm
 from sklearn.linear_model import LogisticRegression
 
-from pathfinder import fit_path
+from pathfinder import FitWarning, fit_path
 from pathfinder.core import path as path_module
 from pathfinder.core import solvers
 from pathfinder.core.families import get_family
@@ -44,12 +44,16 @@ def _solver_used(monkeypatch):
     return used
 
 
-def test_long_tables_are_fitted_in_place_by_the_newton_solver(monkeypatch):
+def test_long_tables_are_fitted_by_the_newton_solver(monkeypatch):
     X, y = _long(1, "binomial", 25_000, 10)
     used = _solver_used(monkeypatch)
+    short = path_module.LONG_TABLE_ROWS - 1
     fit_path(X, y, family="binomial", n_penalties=5)
-    fit_path(X[:2_000], y[:2_000], family="binomial", n_penalties=5)
-    assert used == ["NewtonGramSolver", "NaiveSolver"]
+    fit_path(X[:short], y[:short], family="binomial", n_penalties=5)
+    rows = path_module.LONG_TABLE_ROWS                    # enough rows, too few per column
+    extra = np.random.default_rng(0).normal(size=(rows, rows // path_module.LONG_TABLE_RATIO))
+    fit_path(np.hstack([X[:rows], extra]), y[:rows], family="binomial", n_penalties=5)
+    assert used == ["NewtonGramSolver", "NaiveSolver", "NaiveSolver"]
 
 
 def test_binomial_ridge_on_a_long_table_equals_sklearn_logistic_regression():
@@ -146,6 +150,16 @@ def test_float32_table_is_read_as_it_is(monkeypatch):
     fit64 = fit_path(X32.astype(np.float64), y, family="binomial", penalties=fit32.penalties)
     # the same numbers, held in single precision: the same fit
     assert np.allclose(fit32.coef, fit64.coef, atol=1e-6)
+
+
+def test_separated_presences_on_a_long_table_stop_the_path_with_a_warning():
+    rng = np.random.default_rng(12)
+    X = np.asfortranarray(rng.standard_normal((5_000, 4)))
+    y = (X[:, 0] > 0).astype(float)            # perfectly separated by the first predictor
+    with pytest.warns(FitWarning, match="separates"):
+        fit = fit_path(X, y, family="binomial", penalty_ratio=1e-6)
+    assert fit.stop_reason == "deviance explained above 0.999"
+    assert np.all(np.isfinite(fit.coef))
 
 
 def test_sample_rows_are_spread_over_the_table():
