@@ -1,4 +1,4 @@
-"""The two solvers behind a path: one holds its state, solves at one penalty.
+"""The solvers behind a path: each holds its state and solves at one penalty.
 
 A solver owns the current coefficients (on the standardised scale) and knows
 how to (a) minimise the penalised objective over a working set of terms, (b)
@@ -326,8 +326,10 @@ class NaiveSolver:
 
 HESSIAN_ROWS = 100_000    # the Newton solver's Gram matrix comes from about this many rows at most
 SAMPLE_PIECE = 1024       # ... read in pieces of this many consecutive rows
+KEEP_BYTES = 16 * 2**20   # the sample's columns are kept once read if this small, or a quarter of the rows
 CHUNK_ROWS = 256 * PASS_ROWS  # a pass sums its gradient in pieces of this many rows, in order
-FRESH_TERMS = 16
+FRESH_TERMS = 16          # on tables longer than the sample, a working set this small gets
+                          # its Gram matrix afresh for each penalty (cheap, and fewer passes)
 SLOW_RATE = 0.05          # refresh the Gram matrix when a Newton step shrinks the change less than this
 
 
@@ -404,8 +406,9 @@ class NewtonGramSolver:
         self.H = np.zeros((self.p + 1, self.p + 1))
         self.in_H = np.zeros(self.p + 1, dtype=bool)
         self.H_weights = None
-        small = 4 * self.sample.shape[0] <= self.n
-        self.kept = empty_aligned((self.sample.shape[0], self.p + 1), "F") if small else None
+        m = self.sample.shape[0]
+        keep = 4 * m <= self.n or m * (self.p + 1) * 8 <= KEEP_BYTES
+        self.kept = empty_aligned((m, self.p + 1), "F") if keep else None
         self.slot = np.full(self.p + 1, -1)      # column of ``kept`` holding each term
         self.n_kept = 0
         self._pass(np.arange(self.p, dtype=np.int64), with_deviance=True)
@@ -528,9 +531,9 @@ class NewtonGramSolver:
     def _gram(self, cols, fresh):
         """Make ``H`` hold ``X'WX / n`` (sample estimate) for ``cols`` (intercept = p).
 
-        When the sample is at most a quarter of the rows, its standardised,
-        weighted columns are kept once read, so a term that joins the working
-        set costs the reading of its own column only.
+        When the sample is at most a quarter of the rows or ``KEEP_BYTES``, its
+        standardised, weighted columns are kept once read, so a term that
+        joins the working set costs the reading of its own column only.
         """
         if fresh or self.H_weights is None:
             self.H_weights = self._working_weights(self.sample)
@@ -571,57 +574,65 @@ class NewtonGramSolver:
         block = Z[:, self.slot[new]].T @ Z[:, : self.n_kept]
         return block[:, self.slot[cols]] / Z.shape[0]
 
-    def _secant(self, cols, G, s, yv):
-        """BFGS update of ``H`` on ``cols`` so that ``H s = yv``, the change in the gradient.
+    def _secant(self, G, s, yv):
+        """BFGS update of ``G`` (H on the working set) so that ``G s = yv``, the change in the gradient.
 
         The step just taken and the change of the exact gradient along it
         correct the sampled matrix in the direction the fit is moving
         (Nocedal & Wright 2006, section 6.1); skipped unless ``s'yv > 0``,
-        which keeps ``H`` positive definite.
+        which keeps ``G`` positive definite.
         """
         Hs = G @ s
         sHs = float(s @ Hs)
         sy = float(s @ yv)
         if sy <= 1e-8 * np.sqrt(float(s @ s) * float(yv @ yv)) or sHs <= 0:
-            return
-        self.H[np.ix_(cols, cols)] = G + np.outer(yv, yv) / sy - np.outer(Hs, Hs) / sHs
+            return False
+        G += np.outer(yv / sy, yv)
+        G -= np.outer(Hs / sHs, Hs)
         self.secant_updates += 1
+        return True
 
     # ---- one penalty ----------------------------------------------------------
     def solve(self, l1, l2, ws):
         p = self.p
-        cols = np.append(np.sort(ws), p).astype(np.int64)
+        cols = np.empty(ws.shape[0] + 1, dtype=np.int64)
+        cols[:-1] = np.sort(ws)
+        cols[-1] = p
+        terms = cols[:-1]
         k = cols.shape[0]
-        l1s = np.append(l1[cols[:-1]], 0.0)
-        l2s = np.append(l2[cols[:-1]], 0.0)
+        l1s = np.zeros(k)
+        l2s = np.zeros(k)
+        l1s[:-1], l2s[:-1] = l1[terms], l2[terms]
+        order = np.arange(k, dtype=np.int64)
         if not self.grad_known[cols].all():
-            self._pass(cols[:-1])
-        self._gram(cols, fresh=k <= FRESH_TERMS)
+            self._pass(terms)
+        self._gram(cols, fresh=k <= FRESH_TERMS and self.n >= HESSIAN_ROWS)
+        G = self.H[np.ix_(cols, cols)]            # a copy; written back when it changes
         everything = np.arange(p, dtype=np.int64)
         total_sweeps = 0
         previous = None          # the last step's change, while H is kept
         careful = False          # halve steps until the objective falls
         objective = None
+        old = np.empty(k)
         for _ in range(self.max_newton):
-            G = np.ascontiguousarray(self.H[np.ix_(cols, cols)])
-            g = self.grad[cols].copy()
-            old = np.append(self.beta[cols[:-1]], self.b0)
+            g = self.grad[cols]
+            old[:-1], old[-1] = self.beta[terms], self.b0
             b = old.copy()
-            sweeps = cd_gram(G, g, b, np.arange(k, dtype=np.int64), l1s, l2s,
-                             1e-3 * self.tol, self.max_sweeps)
+            sweeps = cd_gram(G, g, b, order, l1s, l2s, 1e-3 * self.tol, self.max_sweeps)
             total_sweeps += sweeps
             if sweeps >= self.max_sweeps:
                 return total_sweeps, False
             delta = b - old
             change = float(np.max(np.diag(G) * delta * delta))
-            g_old = self.grad[cols].copy()
+            g_old = self.grad[cols]
             # the pass computes the working set's gradient, and when this step
             # is probably the last, that of every term the KKT check may need
-            last = previous is not None and change * change / previous < 0.01 * self.tol
-            gcols = cols[:-1]
+            last = change < self.tol or (previous is not None
+                                         and change * change / previous < 0.01 * self.tol)
+            gcols = terms
             if last:
                 extra = self._uncertain(l1, np.ones(p, dtype=bool))
-                extra[gcols] = True
+                extra[terms] = True
                 gcols = everything if 3 * extra.sum() > p else np.flatnonzero(extra).astype(np.int64)
             self._set(cols, old + delta, gcols, with_deviance=last or careful)
             if careful:
@@ -637,18 +648,21 @@ class NewtonGramSolver:
                 change = float(np.max(np.diag(G) * delta * delta))
             elif previous is not None and change > previous:
                 # the change grew: go back, rebuild H, halve from here on
-                self._set(cols, old, cols[:-1])
+                self._set(cols, old, terms)
                 objective = self._objective(l1, l2)
                 self._gram(cols, fresh=True)
+                G = self.H[np.ix_(cols, cols)]
                 careful, previous = True, None
                 continue
-            if change < self.tol or last:
+            if last:
                 return total_sweeps, True
             if previous is not None and change > SLOW_RATE ** 2 * previous:
                 self._gram(cols, fresh=True)
+                G = self.H[np.ix_(cols, cols)]
                 previous = None
             else:
-                self._secant(cols, G, delta, g_old - self.grad[cols])
+                if self._secant(G, delta, g_old - self.grad[cols]):
+                    self.H[np.ix_(cols, cols)] = G
                 previous = change
         return total_sweeps, False
 
