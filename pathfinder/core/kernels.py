@@ -359,8 +359,29 @@ def _add_products(out, X, cols, center, score, start, stop):
 
 
 @njit(cache=True, nogil=True)
-def glm_pass(X, center, coef, b0, offset, y, w, active, gcols, binomial, bound, with_deviance,
-             lo, hi, eta, grad, anchor, track):
+def _gather(buf, X, rows, used, start, m):
+    """``buf[:m, j] = X[rows[start:start + m], j]`` for the ``used`` columns, four at a time."""
+    k = used.shape[0]
+    a = 0
+    while a + 4 <= k:
+        j0, j1, j2, j3 = used[a], used[a + 1], used[a + 2], used[a + 3]
+        for i in range(m):
+            r = rows[start + i]
+            buf[i, j0] = X[r, j0]
+            buf[i, j1] = X[r, j1]
+            buf[i, j2] = X[r, j2]
+            buf[i, j3] = X[r, j3]
+        a += 4
+    while a < k:
+        j = used[a]
+        for i in range(m):
+            buf[i, j] = X[rows[start + i], j]
+        a += 1
+
+
+@njit(cache=True, nogil=True)
+def glm_pass(X, rows, used, center, coef, b0, offset, y, w, active, gcols, binomial, bound,
+             with_deviance, lo, hi, eta, grad, anchor, track):
     """Rows ``lo:hi``: linear predictor from scratch, family arithmetic, gradient.
 
     With ``Xc = X - center`` (column by column, on the fly: X itself is never
@@ -372,6 +393,10 @@ def glm_pass(X, center, coef, b0, offset, y, w, active, gcols, binomial, bound, 
     zeros and empty weights ``w`` for ones. Rows go in blocks of ``PASS_ROWS``,
     so each block of X comes from memory once and is reused from cache.
 
+    With ``rows`` (not empty) the fit's row i is row ``rows[i]`` of X: each
+    block first gathers the ``used`` columns (all of ``active`` and ``gcols``)
+    into a small buffer, so a fold or a subsample is never copied whole.
+
     ``anchor`` holds the scores ``w_i (y_i - mu_i)`` of an earlier point:
     ``track == 1`` sums the squared distance to them, ``track == 2`` stores
     the present scores there instead, ``track == 0`` leaves them alone.
@@ -382,6 +407,8 @@ def glm_pass(X, center, coef, b0, offset, y, w, active, gcols, binomial, bound, 
     drift = 0.0
     kg = gcols.shape[0]
     score = np.empty(PASS_ROWS)
+    subset = rows.shape[0] > 0
+    buf = np.empty((X.shape[1] if subset else 0, PASS_ROWS)).T     # column-ordered
     for start in range(lo, hi, PASS_ROWS):
         stop = min(start + PASS_ROWS, hi)
         m = stop - start
@@ -391,7 +418,11 @@ def glm_pass(X, center, coef, b0, offset, y, w, active, gcols, binomial, bound, 
                 e[i] = offset[start + i] + b0
         else:
             e[:] = b0
-        _add_columns(e, X, active, coef, center, start, stop)
+        if subset:
+            _gather(buf, X, rows, used, start, m)
+            _add_columns(e, buf, active, coef, center, 0, m)
+        else:
+            _add_columns(e, X, active, coef, center, start, stop)
         s0 = 0.0
         for i in range(m):
             r = start + i
@@ -411,7 +442,10 @@ def glm_pass(X, center, coef, b0, offset, y, w, active, gcols, binomial, bound, 
                 drift += gap * gap
             elif track == 2:
                 anchor[r] = score[i]
-        _add_products(grad, X, gcols, center, score, start, stop)
+        if subset:
+            _add_products(grad, buf, gcols, center, score, 0, m)
+        else:
+            _add_products(grad, X, gcols, center, score, start, stop)
         grad[kg] += s0
     return 2.0 * total, drift
 
@@ -446,17 +480,24 @@ def divide_column(x, by):
 
 
 @njit(cache=True, nogil=True, fastmath=True)
-def column_spread(X, j, mean, w):
-    """``sum_i w_i (X[i, j] - mean)^2 / n`` and the same without weights, no copy made.
+def column_spread(X, rows, j, mean, w):
+    """``sum_i w_i (X[r_i, j] - mean)^2 / n`` and the same without weights, no copy made;
+    ``r_i`` runs over ``rows``, or over every row when ``rows`` is empty.
 
     The sums are vectorised in lanes by index (see _dot_weighted)."""
-    n = X.shape[0]
+    n = w.shape[0]
     s = 0.0
     q = 0.0
-    for i in range(n):
-        v = X[i, j] - mean
-        s += w[i] * (v * v)
-        q += v * v
+    if rows.shape[0] == 0:
+        for i in range(n):
+            v = X[i, j] - mean
+            s += w[i] * (v * v)
+            q += v * v
+    else:
+        for i in range(n):
+            v = X[rows[i], j] - mean
+            s += w[i] * (v * v)
+            q += v * v
     return s / n, q / n
 
 

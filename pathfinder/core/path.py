@@ -60,6 +60,7 @@ MIN_STEPS_BEFORE_STOP = 5
 GRAM_MAX_TERMS = 500      # Gaussian uses the Gram matrix when n > p and p <= this
 LONG_TABLE_ROWS = 2_000   # binomial / Poisson use Newton-Gram steps from this many rows ...
 LONG_TABLE_RATIO = 20     # ... when there are also at least this many rows per column
+SUBSET_COPY_BYTES = 256 * 2**20  # ... and read a fit's rows of X in place if copying them takes more
 
 
 @dataclass(frozen=True)
@@ -224,7 +225,9 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     offset = np.zeros(n_all) if offset is None else _check_vector(offset, n_all, "offset")
     w = np.ones(n_all) if weights is None else _check_vector(weights, n_all, "weights")
     if rows is not None:
-        rows = np.asarray(rows, dtype=np.int64)
+        # in increasing order: X is then read front to back (the fit does not
+        # depend on the order of its rows)
+        rows = np.sort(np.asarray(rows, dtype=np.int64), kind="stable")
         y, offset, w = y[rows], offset[rows], w[rows]
     n = y.shape[0]
     if np.any(w < 0) or w.sum() <= 0:
@@ -246,10 +249,12 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
                                                        max_sweeps, rows, cross_products)
     else:
         threads = blas_threads() if n * p >= 2**22 else 1
-        if long_table and rows is None and _readable_in_place(X):
-            scale, constant, squares = column_scales(X, mean, w, standardize, threads)
+        # a subset of rows is gathered into a copy (faster) unless the copy would be big
+        in_place = rows is None or n * p * 8 > SUBSET_COPY_BYTES
+        if long_table and in_place and _readable_in_place(X):
+            scale, constant, squares = column_scales(X, mean, w, standardize, threads, rows)
             solver = NewtonGramSolver(X, mean, scale, squares, y, w, offset, fam, 1.0, max_sweeps,
-                                      threads=threads)
+                                      threads=threads, rows=rows)
         else:
             Xs, scale, constant, squares = standardised_copy(X, mean, w, standardize, rows, threads)
             if long_table:

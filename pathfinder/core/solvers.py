@@ -165,13 +165,14 @@ def standardised_copy(X, mean, w, standardize, rows=None, threads=1):
     return Xs, scale, constant, squares / scale**2
 
 
-def column_scales(X, mean, w, standardize, threads=1):
-    """As :func:`standardised_copy` without the copy: X is read in place."""
+def column_scales(X, mean, w, standardize, threads=1, rows=None):
+    """As :func:`standardised_copy` without the copy: X (or its ``rows``) read in place."""
     p = X.shape[1]
     var, squares = np.empty(p), np.empty(p)
+    take = np.arange(0) if rows is None else np.asarray(rows, dtype=np.int64)
 
     def one(j):
-        var[j], squares[j] = column_spread(X, j, mean[j], w)
+        var[j], squares[j] = column_spread(X, take, j, mean[j], w)
 
     _each_column(one, p, threads)
     scale, constant = scale_from_variance(var, mean, standardize)
@@ -374,8 +375,9 @@ class NewtonGramSolver:
     """
 
     def __init__(self, X, center, scale, squares, y, w, offset, family: Family, tol, max_sweeps,
-                 max_newton=100, threads=1):
+                 max_newton=100, threads=1, rows=None):
         self.X = X                      # read as (X - center) / scale, never copied
+        self.rows = np.zeros(0, dtype=np.int64) if rows is None else rows   # the fit's rows of X
         self.center = np.asarray(center, dtype=np.float64)
         self.inv_scale = 1.0 / np.asarray(scale, dtype=np.float64)
         self.col_norm = np.sqrt(squares)     # root mean square of each column as read
@@ -384,7 +386,7 @@ class NewtonGramSolver:
         self._offset = offset if np.any(offset) else none
         self._w = none if np.all(w == 1.0) else w
         self.family = family
-        self.n, self.p = X.shape
+        self.n, self.p = y.shape[0], X.shape[1]
         self.binomial = family.name == "binomial"
         self.bound = _PROB_EPS * (1 - _PROB_EPS) if self.binomial else _ETA_MAX
         self.tol = tol
@@ -439,6 +441,7 @@ class NewtonGramSolver:
         """
         active = np.flatnonzero(self.beta).astype(np.int64)
         coef = self.beta * self.inv_scale
+        used = np.union1d(active, gcols) if self.rows.shape[0] else active
         k = gcols.shape[0]
         full = k == self.p
         track = 2 if full else (1 if self.anchor_grad is not None else 0)
@@ -448,7 +451,8 @@ class NewtonGramSolver:
 
         def work(c, lo, hi):
             devs[c], drifts[c] = glm_pass(
-                self.X, self.center, coef, self.b0, self._offset, self.y, self._w, active, gcols,
+                self.X, self.rows, used, self.center, coef, self.b0, self._offset, self.y,
+                self._w, active, gcols,
                 self.binomial, self.bound, with_deviance, lo, hi, self.eta, parts[c],
                 self.anchor, track)
 
@@ -557,7 +561,7 @@ class NewtonGramSolver:
             pos = np.searchsorted(cols, new)
             A = empty_aligned((SAMPLE_PIECE, cols.shape[0]), "F")
             for start in range(0, self.sample.shape[0], SAMPLE_PIECE):
-                rows = self.sample[start:start + SAMPLE_PIECE]
+                rows = self._rows_of_x(self.sample[start:start + SAMPLE_PIECE])
                 part = A[: rows.shape[0]]
                 weighted_sample(self.X, rows, cols, self.center, self.inv_scale,
                                 root[start:start + SAMPLE_PIECE], part)
@@ -568,11 +572,14 @@ class NewtonGramSolver:
         if missing.size:
             first = self.n_kept
             self.n_kept += missing.shape[0]
-            weighted_sample(self.X, self.sample, missing, self.center, self.inv_scale, root,
-                            Z[:, first:self.n_kept])
+            weighted_sample(self.X, self._rows_of_x(self.sample), missing, self.center,
+                            self.inv_scale, root, Z[:, first:self.n_kept])
             self.slot[missing] = np.arange(first, self.n_kept)
         block = Z[:, self.slot[new]].T @ Z[:, : self.n_kept]
         return block[:, self.slot[cols]] / Z.shape[0]
+
+    def _rows_of_x(self, positions):
+        return self.rows[positions] if self.rows.shape[0] else positions
 
     def _secant(self, G, s, yv):
         """BFGS update of ``G`` (H on the working set) so that ``G s = yv``, the change in the gradient.

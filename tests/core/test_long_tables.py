@@ -143,6 +143,22 @@ def test_in_place_and_copied_tables_give_the_same_path():
     assert np.allclose(in_place.coef_std, copied.coef_std, atol=1e-7)
 
 
+def test_a_fit_on_some_rows_read_in_place_equals_a_fit_on_those_rows(monkeypatch):
+    monkeypatch.setattr(path_module, "SUBSET_COPY_BYTES", 0)   # never copy the rows
+    X, y = _long(13, "poisson", 30_000, 10)
+    rng = np.random.default_rng(14)
+    rows = rng.choice(len(y), 12_000, replace=True)      # a bootstrap sample, unsorted, repeats
+    off = rng.uniform(-0.2, 0.2, len(y))
+    in_place = fit_path(X, y, family="poisson", rows=rows, offset=off, n_penalties=20, tol=1e-10)
+    taken = fit_path(np.asfortranarray(X[rows]), y[rows], family="poisson", offset=off[rows],
+                     penalties=in_place.penalties, tol=1e-10)
+    copied = fit_path(np.ascontiguousarray(X), y, family="poisson", rows=rows, offset=off,
+                      penalties=in_place.penalties, tol=1e-10)
+    assert np.allclose(in_place.coef, taken.coef, rtol=1e-6, atol=1e-9)
+    assert np.allclose(in_place.coef, copied.coef, rtol=1e-6, atol=1e-9)
+    assert np.allclose(in_place.deviance, taken.deviance, rtol=1e-9)
+
+
 def test_float32_table_is_read_as_it_is(monkeypatch):
     X, y = _long(10, "binomial", 25_000, 8, scale=False)
     X32 = np.asfortranarray(X.astype(np.float32))
