@@ -179,6 +179,9 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     Parameters
     ----------
     X : array or DataFrame (n, p). Column names of a DataFrame name the terms.
+        A long binomial or Poisson table held column by column (Fortran
+        order, float32 or float64) is read as it is, standardised on the fly:
+        no copy, and float32 data stay float32 (sums are taken in float64).
     y : response (0/1 or proportions for binomial, counts for Poisson).
     family : "gaussian", "binomial" or "poisson".
     mix : 1 is the lasso, 0 ridge, in between the elastic net (Zou & Hastie 2005).
@@ -192,8 +195,10 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     names : names of the columns of X (default: a DataFrame's column names,
         else x0, x1, ...).
     rows : fit on these rows of X only (y, offset and weights are given for
-        all rows of X too). X is then read row block by row block and never
-        copied whole: this is how folds and subsamples are fitted.
+        all rows of X too). X is never copied whole: the rows are read block
+        by block, gathered into a copy of their own, or (long column-ordered
+        tables, when that copy would pass ``SUBSET_COPY_BYTES``) read where
+        they are. This is how folds and subsamples are fitted.
     cross_products : optional ``X.T @ X`` of all rows of X, for repeated
         Gaussian fits on subsets of rows (cross-validation): with uniform
         weights a fit on ``rows`` then subtracts the rows left out instead of

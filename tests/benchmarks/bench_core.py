@@ -131,7 +131,7 @@ def case_memory():
                          capture_output=True, text=True, check=True)
     m = json.loads(out.stdout.strip().splitlines()[-1])
     x = m["x_bytes"]
-    return [("m  binomial path n=1,000,000 p=100: peak allocation above the data / size of X",
+    return [("m  binomial path n=1,000,000 p=100, X row-ordered (copied once): peak allocation above the data / size of X",
              m["traced_peak"] / x, 1.0, 2.0),
             ("m  the same, as rise of peak resident memory / size of X", m["rss_rise"] / x, 1.0, 2.0)]
 
