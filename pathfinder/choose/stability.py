@@ -275,11 +275,30 @@ def _split_units(profile, rng) -> np.ndarray:
 
 
 @dataclass(frozen=True)
+class PackedRows:
+    """Distinct row positions held as a bit mask: a task for a half of a
+    million sites travels as 125 kB instead of 4 MB of indices."""
+
+    bits: np.ndarray
+    n: int
+
+    @classmethod
+    def of(cls, rows, n: int) -> "PackedRows":
+        mask = np.zeros(n, dtype=bool)
+        mask[rows] = True
+        return cls(np.packbits(mask), n)
+
+    def positions(self) -> np.ndarray:
+        """The rows, in increasing order."""
+        return np.flatnonzero(np.unpackbits(self.bits, count=self.n))
+
+
+@dataclass(frozen=True)
 class PairTask:
     """Both subsamples of one pair, fitted on the shared grid."""
 
     pair: int
-    samples: tuple          # two arrays of row positions
+    samples: tuple          # two PackedRows (halves) or two arrays of row positions (bootstrap)
     penalties: np.ndarray
     mix: float
     tol: float = FOLD_TOL
@@ -304,7 +323,8 @@ def run_pair(problem: Problem, task: PairTask) -> PairSelection:
     K, p = len(task.penalties), problem.X.shape[1]
     selected = np.zeros((len(task.samples), K, p), dtype=bool)
     fitted, messages = [], []
-    for h, rows in enumerate(task.samples):
+    for h, sample in enumerate(task.samples):
+        rows = sample.positions() if isinstance(sample, PackedRows) else sample
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             try:
@@ -478,7 +498,8 @@ def stability_selection(problem: Problem, *, mix=1.0, n_pairs=50, threshold=None
 
     # 2. The subsamples, drawn here from the seed; one task per pair.
     if sampling == "halves":
-        drawn = complementary_pairs(n, n_pairs, seed=seed, strata=strata, units=units)
+        drawn = [tuple(PackedRows.of(half, n) for half in pair)
+                 for pair in complementary_pairs(n, n_pairs, seed=seed, strata=strata, units=units)]
     else:
         single = bootstrap_samples(n, 2 * n_pairs, seed=seed, units=units)
         drawn = [(single[2 * b], single[2 * b + 1]) for b in range(n_pairs)]

@@ -291,3 +291,16 @@ def test_bad_options_give_one_line(options, message):
     options = {"seed": 1, "n_pairs": 2, **options}
     with pytest.raises(InputError, match=message):
         stability_selection(problem, **options)
+
+
+def test_halves_travel_as_bit_masks_and_come_back_as_the_same_rows():
+    from pathfinder.choose.stability import PackedRows, complementary_pairs
+
+    n = 10_001
+    first, second = complementary_pairs(n, 1, seed=3)[0]
+    for half in (first, second):
+        packed = PackedRows.of(half, n)
+        assert np.array_equal(packed.positions(), np.sort(half))
+        assert packed.bits.nbytes <= n // 8 + 1          # one bit a site
+    assert not np.intersect1d(PackedRows.of(first, n).positions(),
+                              PackedRows.of(second, n).positions()).size
