@@ -115,8 +115,9 @@ def _add_choosing_options(p):
     p.add_argument("--no-stability", dest="stability", action="store_const", const=False,
                    help="skip stability selection")
     p.add_argument("--subset-budget", type=int, metavar="N",
-                   help="largest number of models the best-subset search may fit (default 50000; "
-                        "the subset size is capped to fit)")
+                   help="largest number of models the best-subset search may fit (default 50000, "
+                        "and for binomial and Poisson at most 2e8 / rows; the subset size is "
+                        "capped to fit)")
     p.add_argument("--no-subsets", dest="subsets", action="store_const", const=False,
                    help="skip the best-subset and stepwise searches")
     p.add_argument("--jobs", type=int, default=1, metavar="N", help="local worker processes (default 1)")

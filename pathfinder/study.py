@@ -28,7 +28,8 @@ from .choose.metrics import METRICS
 from .choose.nested import FoldPlan, choices, comparison_table, held_out_predictions, nested_cv, recommend
 from .choose.folds import block_of
 from .choose.relaxed import relaxed_lasso
-from .choose.selectors import StabilitySelector, SubsetSelector
+from .choose.selectors import (DEFAULT_SUBSET_MODELS, StabilitySelector, SubsetSelector,
+                               default_subset_budget, largest_search_size)
 from .choose.subsets import model_average, variable_importance
 from .data.design import Design, build_design
 from .diagnostics.collinearity import correlation_clusters, correlation_matrix, variance_inflation
@@ -87,7 +88,7 @@ class StudyOptions:
     pfer: float | None = None
     nested_pairs: int = 25
     subsets: bool = True
-    subset_budget: int = 50_000
+    subset_budget: int | None = None    # None: default_subset_budget (fewer models on long tables)
     seed: int = 1
 
     def __post_init__(self):
@@ -113,7 +114,7 @@ class StudyOptions:
             raise InputError("give either a stability threshold or a target error rate (pfer), not both")
         if self.stability_threshold is not None and not 0.5 < float(self.stability_threshold) <= 1:
             raise InputError("the stability threshold must lie above 0.5 and at most 1 (e.g. 0.75)")
-        if int(self.subset_budget) < 1:
+        if self.subset_budget is not None and int(self.subset_budget) < 1:
             raise InputError("the subset budget must be a positive number of models")
         if self.metric not in METRICS:
             raise InputError(f"unknown metric {self.metric!r}: use one of {', '.join(METRICS)}")
@@ -257,7 +258,7 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
                 total=len(splits))
         criteria = stages.run("information criteria", lambda _: _criteria_table(cv.fits, problem))
         full_choices = choices(cv, relaxed)
-        extra_tables, selectors, stability = {}, [], None
+        extra_tables, selectors, stability, budget_notes = {}, [], None, []
         if options.stability:
             selector = StabilitySelector(
                 n_pairs=int(options.n_pairs), threshold=options.stability_threshold, pfer=options.pfer,
@@ -275,7 +276,16 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
                 pfer=options.pfer, mix=selector.mix, strata=selector.strata, units=selector.units,
                 term_groups=selector.term_groups))
         if options.subsets:
-            chooser = SubsetSelector(budget=int(options.subset_budget))
+            budget = options.subset_budget
+            if budget is None:
+                budget = default_subset_budget(survey.family, survey.n)
+                if budget < DEFAULT_SUBSET_MODELS:
+                    size = largest_search_size(problem.X.shape[1], budget)
+                    budget_notes.append(
+                        f"with {survey.n:,} rows the best-subset search was limited to {budget:,} "
+                        f"models (subsets of up to {size} terms) to keep the run to minutes; "
+                        "--subset-budget N searches further")
+            chooser = SubsetSelector(budget=int(budget))
             selectors.append(chooser)
         outer = None
         if options.nested:
@@ -317,7 +327,7 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
     chosen = recommend(comparison, full_choices)
     result_tables.update(stages.run("describing the chosen model", lambda _: _chosen_tables(
         chosen, problem, survey, design, folds, cv, splits)))
-    notes = tuple(survey.notes) + tuple(folds.notes) + tuple(cv.notes)
+    notes = tuple(survey.notes) + tuple(folds.notes) + tuple(cv.notes) + tuple(budget_notes)
     if stability is not None:
         notes += (stability.error_control,) + tuple(stability.notes)
     return Study(

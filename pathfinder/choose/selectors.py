@@ -40,6 +40,20 @@ def refit_terms(problem: Problem, rows, active) -> tuple[float, np.ndarray]:
     return fit.intercept, coef
 
 
+DEFAULT_SUBSET_MODELS = 50_000
+SUBSET_ROW_MODELS = 2 * 10**8  # binomial / Poisson: models x rows the default budget allows
+
+
+def default_subset_budget(family: str, n_rows: int) -> int:
+    """The best-subset budget when none is given: 50,000 models, and for
+    binomial and Poisson responses (each model is fitted on every row) no more
+    than 2e8 model-rows (a few seconds a search on one core, measured), so a
+    long table keeps the search short."""
+    if family == "gaussian":        # fitted from the cross-products: the rows cost nothing
+        return DEFAULT_SUBSET_MODELS
+    return max(1, min(DEFAULT_SUBSET_MODELS, SUBSET_ROW_MODELS // max(int(n_rows), 1)))
+
+
 def largest_search_size(p: int, budget: int) -> int:
     """The largest subset size whose exhaustive search fits within ``budget`` models."""
     total, size = 1, 0

@@ -142,3 +142,22 @@ def test_parquet_is_read_by_the_columns_the_run_uses(tmp_path, monkeypatch):
     explore(tmp_path / "t.parquet", response="present", predictors=["c0", "c1"], coords=["x", "y"],
             folds=3, mixes=[1.0], n_penalties=10, nested=False, stability=False, subsets=False)
     assert set(asked["columns"]) == {"c0", "c1", "present", "x", "y"}
+
+
+def test_long_binomial_tables_get_a_smaller_default_subset_search(monkeypatch):
+    # Each binomial subset model is fitted on every row, so the default budget
+    # holds models x rows; pretend 160 rows is long by lowering that product.
+    from pathfinder.choose import selectors
+
+    # 8 predictors (c0-c5, x, y): 1 + 8 + 28 = 37 models reach size 2, 93 reach size 3
+    monkeypatch.setattr(selectors, "SUBSET_ROW_MODELS", 160 * 37)
+    assert selectors.default_subset_budget("binomial", 160) == 37
+    assert selectors.default_subset_budget("gaussian", 160) == selectors.DEFAULT_SUBSET_MODELS
+    quick = dict(response="present", folds=3, mixes=(1.0,), n_penalties=15, nested=False,
+                 stability=False, seed=2)
+    study = explore(_table(), StudyOptions(**quick))
+    assert any("limited to 37 models (subsets of up to 2 terms)" in note for note in study.notes)
+    assert study.tables["subsets"]["k"].max() == 2
+    given = explore(_table(), StudyOptions(**quick, subset_budget=100))
+    assert not any("limited to" in note for note in given.notes)       # a budget given is kept
+    assert given.tables["subsets"]["k"].max() == 3                 # 93 <= 100 models
