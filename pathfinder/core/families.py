@@ -56,11 +56,15 @@ class Family:
             return float(np.dot(w, r * r)), w, r, eta
         n = y.shape[0]
         W, resid, mu = np.empty(n), np.empty(n), np.empty(n)
-        if self.name == "binomial":
-            dev = kernels.binomial_evaluate(y, eta, w, _PROB_EPS, W, resid, mu)
-        else:
-            dev = kernels.poisson_evaluate(y, eta, w, _ETA_MAX, W, resid, mu)
+        binomial = self.name == "binomial"
+        dev = kernels.glm_evaluate(y, eta, w, binomial, row_bound(self.name), W, resid, mu)
         return dev, W, resid, mu
+
+
+def row_bound(name: str) -> float:
+    """The compiled row functions' bound: the binomial variance floor, or the
+    largest Poisson linear predictor."""
+    return _PROB_EPS * (1.0 - _PROB_EPS) if name == "binomial" else _ETA_MAX
 
 
 def _gaussian_dev(y, mu):

@@ -266,26 +266,21 @@ def mean_at(e, binomial, bound):
     return np.exp(e if e < bound else bound)
 
 
-@njit(cache=True)
-def binomial_evaluate(y, eta, w, prob_eps, W, resid, mu):
-    """Logit link; y in [0, 1]. One exp and one log1p per row."""
-    floor = prob_eps * (1.0 - prob_eps)
-    total = 0.0
-    for i in range(y.shape[0]):
-        d, m, v = _binomial_row(y[i], w[i], eta[i], floor)
-        total += d
-        mu[i] = m
-        W[i] = w[i] * v
-        resid[i] = (y[i] - m) / v
-    return 2.0 * total
+@njit(cache=True, inline="always")
+def _family_row(yi, wi, e, binomial, bound):
+    """The row function of the family: ``bound`` is the variance floor
+    (binomial) or the largest linear predictor (Poisson)."""
+    if binomial:
+        return _binomial_row(yi, wi, e, bound)
+    return _poisson_row(yi, wi, e, bound)
 
 
 @njit(cache=True)
-def poisson_evaluate(y, eta, w, eta_max, W, resid, mu):
-    """Log link. One exp per row (log y is needed only where y > 0)."""
+def glm_evaluate(y, eta, w, binomial, bound, W, resid, mu):
+    """Binomial (logit) or Poisson (log) rows: one exp and at most one log each."""
     total = 0.0
     for i in range(y.shape[0]):
-        d, m, v = _poisson_row(y[i], w[i], eta[i], eta_max)
+        d, m, v = _family_row(y[i], w[i], eta[i], binomial, bound)
         total += d
         mu[i] = m
         W[i] = w[i] * v
@@ -386,8 +381,8 @@ def glm_pass(X, rows, used, center, coef, b0, offset, y, w, active, gcols, binom
 
     With ``Xc = X - center`` (column by column, on the fly: X itself is never
     copied), ``eta = offset + b0 + Xc[:, active] @ coef[active]``; then the
-    means (and, if ``with_deviance``, the deviances: a log per row) as in the
-    ``*_evaluate`` kernels; then
+    means (and, if ``with_deviance``, the deviances: a log per row) as in
+    :func:`glm_evaluate`; then
     ``grad[k] += sum_i Xc[i, gcols[k]] * w_i (y_i - mu_i)`` and, in the last
     slot, the same sum for the intercept. An empty ``offset`` stands for
     zeros and empty weights ``w`` for ones. Rows go in blocks of ``PASS_ROWS``,
@@ -427,14 +422,11 @@ def glm_pass(X, rows, used, center, coef, b0, offset, y, w, active, gcols, binom
         for i in range(m):
             r = start + i
             wr = w[r] if w.shape[0] else 1.0
-            if not with_deviance:
-                mean = mean_at(e[i], binomial, bound)
-            elif binomial:
-                d, mean, v = _binomial_row(y[r], wr, e[i], bound)
+            if with_deviance:
+                d, mean, v = _family_row(y[r], wr, e[i], binomial, bound)
                 total += d
             else:
-                d, mean, v = _poisson_row(y[r], wr, e[i], bound)
-                total += d
+                mean = mean_at(e[i], binomial, bound)
             score[i] = wr * (y[r] - mean)
             s0 += score[i]
             if track == 1:
@@ -506,10 +498,7 @@ def glm_deviance(y, w, eta, binomial, bound, lo, hi):
     """Weighted deviance ``sum w_i d_i`` of rows ``lo:hi`` at linear predictor ``eta``."""
     total = 0.0
     for r in range(lo, hi):
-        if binomial:
-            d, mean, v = _binomial_row(y[r], w[r], eta[r], bound)
-        else:
-            d, mean, v = _poisson_row(y[r], w[r], eta[r], bound)
+        d, mean, v = _family_row(y[r], w[r], eta[r], binomial, bound)
         total += d
     return 2.0 * total
 

@@ -27,7 +27,7 @@ from concurrent.futures import ThreadPoolExecutor
 from scipy.special import expit
 
 from .arrays import empty_aligned
-from .families import _ETA_MAX, _PROB_EPS, Family, null_intercept
+from .families import Family, null_intercept, row_bound
 from .kernels import (PASS_ROWS, cd_gram, cd_naive, centre_column, column_spread, divide_column,
                       glm_deviance, glm_pass, weighted_sample)
 
@@ -381,14 +381,13 @@ class NewtonGramSolver:
         self.center = np.asarray(center, dtype=np.float64)
         self.inv_scale = 1.0 / np.asarray(scale, dtype=np.float64)
         self.col_norm = np.sqrt(squares)     # root mean square of each column as read
-        self.y, self.w, self.offset = y, w, offset
+        self.y, self.w = y, w
         none = np.zeros(0)       # the passes skip reading a zero offset and unit weights
         self._offset = offset if np.any(offset) else none
         self._w = none if np.all(w == 1.0) else w
-        self.family = family
         self.n, self.p = y.shape[0], X.shape[1]
         self.binomial = family.name == "binomial"
-        self.bound = _PROB_EPS * (1 - _PROB_EPS) if self.binomial else _ETA_MAX
+        self.bound = row_bound(family.name)
         self.tol = tol
         self.max_sweeps = max_sweeps
         self.max_newton = max_newton
