@@ -3,6 +3,40 @@
 The public API re-exports names only; each lives in its own module.
 """
 
+
+def _compile_cache_or_none() -> None:
+    """Let the compiled loops run where numba cannot keep its cache.
+
+    The loops are compiled with ``cache=True``; numba stores them beside the
+    source or in the user's cache folder, and stops at import when neither can
+    be written (a read-only install, a home folder that is not writable). Then
+    the cache goes to a private temporary folder, deleted at exit: the loops
+    are compiled afresh in each run, which is slower to start but gives the
+    same results. Where even that is impossible, caching is switched off.
+    """
+    import atexit
+    import shutil
+    import tempfile
+
+    from numba.core import config, dispatcher
+    from numba.core.caching import FunctionCache
+
+    try:
+        FunctionCache(_compile_cache_or_none)   # numba's own search for a writable place
+        return
+    except RuntimeError:
+        pass
+    try:
+        folder = tempfile.mkdtemp(prefix="pathfinder-compiled-")
+    except OSError:
+        dispatcher.Dispatcher.enable_caching = lambda self: None
+        return
+    atexit.register(shutil.rmtree, folder, ignore_errors=True)
+    config.CACHE_DIR = folder
+
+
+_compile_cache_or_none()
+
 from .core import PathResult, fit_path
 from .errors import FitWarning, InputError, PathfinderError
 from .predict import load_model, predict_table
