@@ -48,6 +48,7 @@ from .errors import InputError
 from .outputs.model_file import check_document, load_model_document, write_atomically
 
 KINDS = ("response", "link", "both")
+LARGEST_LOG = float(np.log(np.finfo(np.float64).max))
 FLAG_COLUMNS = ("n_outside_range", "most_extreme_predictor", "distance_outside", "mess",
                 "most_dissimilar_predictor", "novel", "reason")
 
@@ -114,17 +115,24 @@ class Model:
                 clean[name] = _read_covariate(frame[name], name, reasons)
         offset, notes = self._offset(frame, reasons)
 
-        terms = self.active_terms
-        coef = self.coef[self.coef != 0]
+        terms, coef = self._terms_to_build()
         levels = {k: v for k, v in self.reference_levels.items() if k in self.factors}
         X = apply_design(terms, levels, pd.DataFrame(clean, index=frame.index), allow_unknown=True)
-        eta = self.intercept + X @ coef + offset
+        with np.errstate(over="ignore", invalid="ignore"):
+            eta = self.intercept + X @ coef + offset
         unusable = np.array([bool(r) for r in reasons], dtype=bool)
         eta[unusable] = np.nan
+        with np.errstate(over="ignore", invalid="ignore"):
+            mean = get_family(self.family).inverse_link(eta)
+            if self.family == "poisson":    # a mean beyond the largest number there is
+                mean = np.where(eta > LARGEST_LOG, np.inf, mean)
+        _explain_overflow(eta, mean, X, coef, terms, clean, reasons)
+        eta[~np.isfinite(mean)] = np.nan
+        mean = np.where(np.isfinite(mean), mean, np.nan)
 
         out = pd.DataFrame(index=frame.index)
         if kind in ("response", "both"):
-            out["prediction"] = get_family(self.family).inverse_link(eta)
+            out["prediction"] = mean
         if kind in ("link", "both"):
             out["link"] = eta
         for column, values in self._flags(clean, n).items():
@@ -132,6 +140,18 @@ class Model:
         out["reason"] = ["; ".join(r) for r in reasons]
         out.attrs["notes"] = tuple(notes)
         return out
+
+    def _terms_to_build(self) -> tuple[tuple[Term, ...], np.ndarray]:
+        """The terms with a non-zero coefficient, and every level of a factor in use.
+
+        A level whose indicator the fit set to zero is still a level seen in
+        training: its sites are predicted as the reference level is. Its
+        indicator is built (with coefficient 0) so that it is known.
+        """
+        keep = [b != 0 or (term.kind == "level" and term.sources[0] in self.factors)
+                for term, b in zip(self.terms, self.coef)]
+        terms = tuple(term for term, k in zip(self.terms, keep) if k)
+        return terms, self.coef[np.array(keep, dtype=bool)]
 
     def _check_columns(self, frame: pd.DataFrame) -> None:
         absent = [name for name in self.required_columns if name not in frame.columns]
@@ -181,6 +201,30 @@ class Model:
         return {"n_outside_range": count, "most_extreme_predictor": names[extreme],
                 "distance_outside": distance, "mess": scores,
                 "most_dissimilar_predictor": names[dissimilar], "novel": novel}
+
+
+def _explain_overflow(eta, mean, X, coef, terms, clean, reasons) -> None:
+    """A reason for each row whose prediction is not a finite number though its values were read.
+
+    That happens only when a covariate is so far outside the training range
+    that the linear predictor or its inverse overflows; the term that
+    contributes most is named, with the value that drives it.
+    """
+    rows = np.flatnonzero(~np.isfinite(mean) & np.array([not r for r in reasons], dtype=bool))
+    for i in rows:
+        with np.errstate(over="ignore", invalid="ignore"):
+            size = np.abs(X[i] * coef)
+        size = np.where(np.isnan(size), np.inf, size)
+        term = terms[int(np.argmax(size))] if size.size else None
+        if term is None:
+            reasons[i].append("the prediction is not a finite number")
+            continue
+        shown = ", ".join(f"{source} = {clean[source][i]:g}" for source in term.sources
+                          if source in clean and np.ndim(clean[source][i]) == 0
+                          and isinstance(clean[source][i], (float, np.floating)))
+        reasons[i].append(
+            f"the prediction overflows: {shown or term.name} is far outside the training "
+            "range (check its units or a no-data code)")
 
 
 def _read_covariate(series: pd.Series, name: str, reasons: list) -> np.ndarray:
@@ -265,7 +309,8 @@ def predict_table(model_path, data_path, out_path=None, *, decimal=None,
 def prediction_summary(result: pd.DataFrame) -> str:
     """One plain line about a prediction table, for the terminal."""
     n = len(result)
-    missing = int((result["reason"] != "").sum())
+    made = result["prediction"] if "prediction" in result.columns else result["link"]
+    missing = n - int(made.notna().sum())
     outside = int((result["n_outside_range"] > 0).sum())
     novel = int(result["novel"].fillna(False).sum())
     parts = [f"{n - missing} of {n} sites predicted"]

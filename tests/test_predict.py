@@ -431,3 +431,58 @@ def test_a_plain_offset_column_is_added_as_it_is_and_required(frame, tmp_path):
     np.testing.assert_allclose(result["prediction"], expected, rtol=0, atol=1e-10)
     with pytest.raises(InputError, match="'log_area'"):
         model.predict(table.drop(columns=["log_area"]))
+
+
+# ---------------------------------------------------------------------------
+# Factor levels whose indicator the fit set to zero; overflow; the summary
+# ---------------------------------------------------------------------------
+
+
+def _with_zero_level(poisson, level="bedrock=granite"):
+    """The poisson model with one factor level's indicator set to zero (as the lasso may)."""
+    doc = json.loads(json.dumps(poisson.doc))
+    for term in doc["terms"]:
+        if term["name"] == level:
+            term["coefficient"], term["in_model"] = 0.0, False
+    return Model(doc)
+
+
+def test_a_level_whose_indicator_is_zero_predicts_as_the_reference_level(poisson, frame):
+    model = _with_zero_level(poisson)
+    result = model.predict(frame)
+    granite = (frame["bedrock"] == "granite").to_numpy()
+    assert granite.any()
+    assert result["prediction"].notna().all() and (result["reason"] == "").all()
+    # The same sites moved to the reference level (chalk) get the same prediction.
+    as_reference = model.predict(frame.assign(bedrock="chalk"))
+    np.testing.assert_allclose(result["prediction"][granite], as_reference["prediction"][granite],
+                               rtol=1e-12)
+    assert prediction_summary(result).startswith(f"{len(frame)} of {len(frame)} sites predicted")
+
+
+def test_only_a_level_never_seen_is_left_empty_and_always_with_a_reason(poisson, frame):
+    model = _with_zero_level(poisson)
+    new = frame.iloc[:6].copy()
+    new.loc[new.index[0], "bedrock"] = "granite"
+    new.loc[new.index[1], "bedrock"] = "peat"
+    result = model.predict(new)
+    assert result["prediction"].isna().tolist() == [False, True, False, False, False, False]
+    assert result["reason"].tolist()[1] == "unknown level 'peat' of bedrock"
+    assert (result["reason"][result["prediction"].isna()] != "").all()
+    assert prediction_summary(result).startswith("5 of 6 sites predicted; 1 could not be")
+
+
+def test_a_covariate_that_overflows_the_prediction_is_named(poisson, frame):
+    model = load_model_from(poisson)
+    new = frame.iloc[:3].copy()
+    new.loc[new.index[2], "soil_ph"] = 1e300    # a positive coefficient: exp(link) overflows
+    result = model.predict(new)
+    assert result["prediction"].isna().tolist() == [False, False, True]
+    reason = result["reason"].iloc[2]
+    assert "soil_ph = 1e+300" in reason and "outside the training range" in reason
+    assert result["most_extreme_predictor"].iloc[2] == "soil_ph"
+    assert prediction_summary(result).startswith("2 of 3 sites predicted")
+
+
+def load_model_from(chosen):
+    return Model(json.loads(json.dumps(chosen.doc)))
