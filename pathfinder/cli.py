@@ -12,11 +12,12 @@ import json
 import sys
 from pathlib import Path
 
-from . import __version__
+from . import __version__, defaults
+from .core.families import BINOMIAL, FAMILIES, GAUSSIAN, POISSON
 from .errors import InputError
 
 DEMO_FOLDER = "pathfinder-demo"
-DEMO_CHOICES = {"presence": "binomial", "count": "poisson", "continuous": "gaussian"}
+DEMO_CHOICES = {"presence": BINOMIAL.name, "count": POISSON.name, "continuous": GAUSSIAN.name}
 DEMO_BLOCK_KM = 50.0  # spatial blocks for the demo survey, beyond its autocorrelation range (~42 km)
 
 
@@ -29,6 +30,10 @@ class _Parser(argparse.ArgumentParser):
 
 def _names(text):
     return tuple(part.strip() for part in text.split(",") if part.strip())
+
+
+def _listed(values) -> str:
+    return ",".join(f"{v:g}" for v in values)
 
 
 def _numbers(text):
@@ -53,7 +58,7 @@ def _add_table_options(p):
     p.add_argument("data", nargs="?", help="the survey table: a CSV file (any common delimiter) or "
                                            "a Parquet file (may instead be named in the study file)")
     p.add_argument("--response", metavar="COL", help="the column to model (required here or in the study file)")
-    p.add_argument("--family", choices=["auto", "gaussian", "binomial", "poisson"],
+    p.add_argument("--family", choices=["auto", *FAMILIES],
                    help="binomial for presence/absence, poisson for counts, gaussian for a "
                         "continuous measure; auto (default) picks one from the response and says why")
     p.add_argument("--predictors", type=_names, metavar="A,B,..",
@@ -81,17 +86,17 @@ def _add_model_options(p):
                    help="add every pairwise interaction of numeric predictors (centred)")
     p.add_argument("--mix", dest="mixes", type=_numbers, metavar="M1,M2,..",
                    help="lasso-to-ridge mix values: 1 lasso, 0 ridge, between: elastic net "
-                        "(default 1,0.75,0.5,0.25,0)")
+                        f"(default {_listed(defaults.MIXES)})")
     p.add_argument("--penalties", dest="n_penalties", type=int, metavar="N",
-                   help="penalties on the path (default 100)")
+                   help=f"penalties on the path (default {defaults.N_PENALTIES})")
     p.add_argument("--penalty-ratio", type=float, metavar="R",
                    help="smallest penalty as a fraction of the largest (default 1e-4, or 1e-2 when "
                         "there are more terms than rows)")
-    p.add_argument("--seed", type=int, help="seed for every random choice (default 1)")
+    p.add_argument("--seed", type=int, help=f"seed for every random choice (default {defaults.SEED})")
 
 
 def _add_choosing_options(p):
-    p.add_argument("--folds", type=int, metavar="K", help="cross-validation folds (default 10)")
+    p.add_argument("--folds", type=int, metavar="K", help=f"cross-validation folds (default {defaults.FOLDS})")
     p.add_argument("--block-size", type=float, metavar="S",
                    help="spatial blocks: square blocks of this size in coordinate units, whole "
                         "blocks to a fold (needs --coords)")
@@ -99,23 +104,27 @@ def _add_choosing_options(p):
     p.add_argument("--repeats", type=int, metavar="R", help="repeat cross-validation R times")
     p.add_argument("--metric",
                    choices=["deviance", "mse", "mae", "auc", "brier", "log_loss", "deviance_explained"],
-                   help="held-out measure that picks the penalty (default deviance)")
+                   help=f"held-out measure that picks the penalty (default {defaults.METRIC})")
     p.add_argument("--no-relax", dest="relax", action="store_const", const=False,
                    help="skip the relaxed lasso")
     p.add_argument("--no-nested", dest="nested", action="store_const", const=False,
                    help="skip nested cross-validation (faster, but no honest error for the comparison)")
     p.add_argument("--inner-folds", type=int, metavar="K",
-                   help="folds inside each outer training set in nested cross-validation (default 5)")
+                   help="folds inside each outer training set in nested cross-validation "
+                        f"(default {defaults.INNER_FOLDS})")
     p.add_argument("--pairs", dest="n_pairs", type=int, metavar="B",
-                   help="stability selection: pairs of half samples (default 50, i.e. 100 fits)")
+                   help="stability selection: pairs of half samples "
+                        f"(default {defaults.STABILITY_PAIRS}, i.e. {2 * defaults.STABILITY_PAIRS} fits)")
     p.add_argument("--stability-threshold", type=float, metavar="PI",
-                   help="selection frequency that makes a term stable (default 0.75)")
+                   help="selection frequency that makes a term stable "
+                        f"(default {defaults.STABILITY_THRESHOLD})")
     p.add_argument("--pfer", type=float, metavar="V",
                    help="instead of a threshold: the expected number of wrongly stable terms to allow")
     p.add_argument("--no-stability", dest="stability", action="store_const", const=False,
                    help="skip stability selection")
     p.add_argument("--subset-budget", type=int, metavar="N",
-                   help="largest number of models the best-subset search may fit (default 50000, "
+                   help="largest number of models the best-subset search may fit "
+                        f"(default {defaults.SUBSET_MODELS}, "
                         "and for binomial and Poisson at most 2e8 / rows; the subset size is "
                         "capped to fit)")
     p.add_argument("--no-subsets", dest="subsets", action="store_const", const=False,
@@ -166,7 +175,7 @@ def build_parser() -> argparse.ArgumentParser:
         formatter_class=argparse.RawDescriptionHelpFormatter)
     demo.add_argument("--response", choices=list(DEMO_CHOICES), default="presence",
                       help="which of the three responses to model (default presence)")
-    demo.add_argument("--seed", type=int, default=1)
+    demo.add_argument("--seed", type=int, default=defaults.SEED)
     demo.add_argument("--jobs", type=int, default=1, metavar="N", help="local worker processes")
     demo.add_argument("--quick", action="store_true", help="skip nested cross-validation (faster)")
     _add_output_options(demo, default_out=DEMO_FOLDER)
@@ -179,8 +188,9 @@ def build_parser() -> argparse.ArgumentParser:
         epilog="example:\n  pathfinder screen sites.csv --response present --exclude site_id --out checks",
         formatter_class=argparse.RawDescriptionHelpFormatter)
     _add_table_options(screen)
-    screen.add_argument("--threshold", type=float, default=0.7, metavar="R",
-                        help="|r| at which covariates count as moving together (default 0.7)")
+    screen.add_argument("--threshold", type=float, default=defaults.CORRELATION_THRESHOLD, metavar="R",
+                        help="|r| at which covariates count as moving together "
+                             f"(default {defaults.CORRELATION_THRESHOLD})")
     screen.add_argument("--out", metavar="DIR", help="also write the tables as CSV to this folder")
     screen.add_argument("--overwrite", action="store_true", help="replace a non-empty output folder")
     screen.add_argument("--quiet", action="store_true", help="print nothing but errors")
@@ -228,6 +238,13 @@ def _options_from(args):
     return data, StudyOptions(**settings)
 
 
+def _check_counts(args) -> None:
+    """Whole-number options that no parser type can bound: one line naming the option."""
+    seed = getattr(args, "seed", None)
+    if seed is not None and seed < 0:
+        raise InputError(f"--seed must be a whole number, 0 or more (got {seed})")
+
+
 def _backend(args):
     from .parallel import Backend
     if args.jobs < 1:
@@ -236,19 +253,23 @@ def _backend(args):
 
 
 def run_explore(args) -> int:
-    from .outputs.folder import check_target
+    from .outputs.folder import check_target, output_lock
     from .study import explore
+    _check_counts(args)
     data, options = _options_from(args)
-    check_target(args.out, overwrite=args.overwrite, inputs=[data])
-    study = explore(Path(data), options, backend=_backend(args), progress=_progress(args))
-    return _finish(study, args, command="explore", inputs=[data])
+    with output_lock(args.out):   # one run at a time into one folder
+        check_target(args.out, overwrite=args.overwrite, inputs=[data])
+        study = explore(Path(data), options, backend=_backend(args), progress=_progress(args))
+        return _finish(study, args, command="explore", inputs=[data])
 
 
 def run_demo(args) -> int:
     from . import examples
-    from .outputs.folder import check_target
+    from .outputs.folder import check_target, output_lock
     from .study import StudyOptions, explore
+    _check_counts(args)
     family = DEMO_CHOICES[args.response]
+    counts = args.response == "count"
     response = examples.DEMO_RESPONSES[family]
     others = tuple(c for f, c in examples.DEMO_RESPONSES.items() if f != family)
     effort = examples.EFFORT
@@ -256,14 +277,15 @@ def run_demo(args) -> int:
     options = StudyOptions(
         response=response, family=family,
         exclude=others + tuple(examples.SITE_LABELS) + (examples.GROUPS,)
-        + (() if family == "poisson" else (effort,)),
-        effort=effort if family == "poisson" else None, coords=tuple(examples.COORDS),
+        + (() if counts else (effort,)),
+        effort=effort if counts else None, coords=tuple(examples.COORDS),
         block_size=DEMO_BLOCK_KM, squares=("july_temp_c",), nested=not args.quick, seed=args.seed)
-    args.overwrite = args.overwrite or _is_earlier_demo(Path(args.out))
-    check_target(args.out, overwrite=args.overwrite)
-    with examples.table_file() as table:
-        study = explore(table, options, backend=_backend(args), progress=_progress(args))
-    return _finish(study, args, command="demo")
+    with output_lock(args.out):   # one run at a time into one folder
+        args.overwrite = args.overwrite or _is_earlier_demo(Path(args.out))
+        check_target(args.out, overwrite=args.overwrite)
+        with examples.table_file() as table:
+            study = explore(table, options, backend=_backend(args), progress=_progress(args))
+        return _finish(study, args, command="demo")
 
 
 def run_screen(args) -> int:
@@ -350,26 +372,93 @@ def _finish(study, args, *, command, inputs=()) -> int:
     return 0
 
 
+class Stopped(KeyboardInterrupt):
+    """A stop signal (SIGTERM, SIGHUP), met like Ctrl-C: nothing half-written is left."""
+
+    def __init__(self, signum):
+        super().__init__(signum)
+        self.signum = signum
+
+
+STOP_SIGNALS = ("SIGTERM", "SIGHUP")   # kill, timeout, a batch system's time limit, a closed terminal
+
+
+def _raise_stopped(signum, _frame):
+    raise Stopped(signum)
+
+
+def _on_stop_signals():
+    """Turn stop signals into :class:`Stopped` while a command runs; the old handlers back after."""
+    import signal
+    previous = {}
+    for name in STOP_SIGNALS:
+        number = getattr(signal, name, None)
+        if number is None:
+            continue
+        try:
+            previous[number] = signal.signal(number, _raise_stopped)
+        except (ValueError, OSError):   # not the main thread: leave signals alone
+            pass
+
+    def restore():
+        for number, handler in previous.items():
+            signal.signal(number, handler)
+    return restore
+
+
+def _end_quietly_on_broken_pipe():
+    """The reader of standard output has gone (``... | head``): stop writing, say nothing."""
+    import os
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())   # no second error when Python flushes at exit
+    except (OSError, ValueError, AttributeError):
+        pass
+    return 128 + 13   # as a program ended by SIGPIPE
+
+
+def _stopped_line(error) -> str:
+    import signal
+    signum = getattr(error, "signum", None)
+    if signum is None:
+        return "pathfinder: interrupted; nothing was written (an earlier output is as it was)"
+    name = signal.Signals(signum).name
+    return f"pathfinder: stopped by {name}; nothing was written (an earlier output is as it was)"
+
+
 def main(argv=None) -> int:
     argv = sys.argv[1:] if argv is None else list(argv)
     debug = "--debug" in argv
+    restore_signals = _on_stop_signals()
     try:
         args = build_parser().parse_args(argv)
         if args.command is None:
             raise InputError("choose a command: explore, demo, screen or predict (see 'pathfinder --help')")
-        return args.run(args)
+        code = args.run(args)
+        sys.stdout.flush()   # a closed pipe shows here, not at exit
+        return code
     except InputError as error:
-        print(f"pathfinder: {error.message}", file=sys.stderr)
+        print(f"pathfinder: {error.for_command_line()}", file=sys.stderr)
         return 2
-    except KeyboardInterrupt:
-        print("pathfinder: interrupted; no output folder was written", file=sys.stderr)
-        return 130
+    except BrokenPipeError:
+        return _end_quietly_on_broken_pipe()
+    except KeyboardInterrupt as error:
+        print(_stopped_line(error), file=sys.stderr)
+        return 128 + (getattr(error, "signum", None) or 2)
+    except OSError as error:  # the machine refused (permission, read-only, full disk): not a fault
+        if debug:
+            raise
+        from .outputs.folder import os_error_line
+        print(f"pathfinder: {os_error_line(error, doing='use')}", file=sys.stderr)
+        return 2
     except Exception as error:  # an internal fault: short message, full detail on request
         if debug:
             raise
         print(f"pathfinder: internal fault ({type(error).__name__}: {error}); "
               "rerun with --debug for the details and please report it", file=sys.stderr)
         return 1
+    finally:
+        restore_signals()
 
 
 if __name__ == "__main__":

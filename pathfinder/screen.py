@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import pandas as pd
 
 from .data.design import build_design
+from .defaults import CORRELATION_THRESHOLD
 from .data.intake import missing_cells, prepare_survey
 from .diagnostics.collinearity import correlation_clusters, correlation_matrix, variance_inflation
 from .outputs.tables import correlations_table
@@ -33,7 +34,8 @@ class Screen:
         return {"terms": self.terms, "missing": self.missing, "correlations": self.correlations}
 
 
-def screen(frame: pd.DataFrame, *, response, threshold=0.7, **survey_options) -> Screen:
+def screen(frame: pd.DataFrame, *, response, threshold=CORRELATION_THRESHOLD,
+           **survey_options) -> Screen:
     """Check the table, then describe every term and how the terms move together."""
     raw_missing = pd.DataFrame({"column": frame.columns,
                                 "missing": [int(missing_cells(frame[c]).sum()) for c in frame.columns]})

@@ -22,13 +22,16 @@ import pandas as pd
 from threadpoolctl import threadpool_limits
 
 from .choose.criteria import information_criteria
-from .choose.cv import Problem, cross_validate
+from . import defaults
+from .choose.cv import cross_validate
+from .core.families import get_family
 from .choose.folds import make_folds
-from .choose.metrics import METRICS
+from .choose.metrics import METRICS, metrics_for as family_metrics
+from .choose.problem import Problem, method_name
 from .choose.nested import FoldPlan, choices, comparison_table, held_out_predictions, nested_cv, recommend
 from .choose.folds import block_of
 from .choose.relaxed import relaxed_lasso
-from .choose.selectors import (DEFAULT_SUBSET_MODELS, StabilitySelector, SubsetSelector,
+from .choose.selectors import (StabilitySelector, SubsetSelector,
                                default_subset_budget, largest_search_size)
 from .choose.subsets import model_average, variable_importance
 from .data.design import Design, build_design
@@ -38,18 +41,6 @@ from .data.intake import Survey, TableInfo, prepare_survey, read_table
 from .errors import FitWarning, InputError
 from .outputs import tables
 from .parallel import Backend, Session, describe
-
-DEFAULT_MIXES = (1.0, 0.75, 0.5, 0.25, 0.0)
-
-
-def method_name(mix: float) -> str:
-    """Published names: lasso (mix 1), ridge (mix 0), elastic net in between."""
-    if mix == 1.0:
-        return "lasso"
-    if mix == 0.0:
-        return "ridge"
-    return "elastic net"
-
 
 @dataclass(frozen=True)
 class StudyOptions:
@@ -71,25 +62,25 @@ class StudyOptions:
     delimiter: str | None = None
     squares: bool | tuple = False
     interactions: bool | tuple = False
-    mixes: tuple = DEFAULT_MIXES
-    n_penalties: int = 100
+    mixes: tuple = defaults.MIXES
+    n_penalties: int = defaults.N_PENALTIES
     penalty_ratio: float | None = None
     standardize: bool = True
-    folds: int = 10
+    folds: int = defaults.FOLDS
     block_size: float | None = None
     repeats: int = 1
-    metric: str = "deviance"
+    metric: str = defaults.METRIC
     relax: bool = True
     nested: bool = True
-    inner_folds: int = 5
+    inner_folds: int = defaults.INNER_FOLDS
     stability: bool = True
-    n_pairs: int = 50
+    n_pairs: int = defaults.STABILITY_PAIRS
     stability_threshold: float | None = None
     pfer: float | None = None
-    nested_pairs: int = 25
+    nested_pairs: int = defaults.NESTED_STABILITY_PAIRS
     subsets: bool = True
     subset_budget: int | None = None    # None: default_subset_budget (fewer models on long tables)
-    seed: int = 1
+    seed: int = defaults.SEED
 
     def __post_init__(self):
         mixes = tuple(float(m) for m in self.mixes)
@@ -185,12 +176,13 @@ class _Stages:
                 self.progress(name, None)
 
 
-def metrics_for(family: str, primary: str) -> tuple:
+def metrics_for(family, primary: str) -> tuple:
     """The primary metric first, then every other metric that fits the family."""
-    if family not in METRICS[primary].families:
-        raise InputError(f"the metric {primary!r} does not apply to a {family} response; "
-                         f"use one of {', '.join(k for k, m in METRICS.items() if family in m.families)}")
-    return (primary,) + tuple(k for k, m in METRICS.items() if family in m.families and k != primary)
+    suits = family_metrics(family)
+    if primary not in suits:
+        raise InputError(f"the metric {primary!r} does not apply to a {get_family(family).name} response; "
+                         f"use one of {', '.join(suits)}")
+    return (primary,) + tuple(k for k in suits if k != primary)
 
 
 def explore(data, options: StudyOptions | None = None, *, backend: Backend | None = None,
@@ -263,7 +255,7 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
             selector = StabilitySelector(
                 n_pairs=int(options.n_pairs), threshold=options.stability_threshold, pfer=options.pfer,
                 mix=cv.best_mix if cv.best_mix > 0 else 1.0,
-                strata=survey.response if survey.family == "binomial" else None,
+                strata=survey.response if problem.family.binary else None,
                 units=_sampling_units(survey, options),
                 term_groups=tuple(t.group for t in design.terms))
             stability, made = stages.run("stability selection", lambda tick: selector.run(
@@ -279,7 +271,7 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
             budget = options.subset_budget
             if budget is None:
                 budget = default_subset_budget(survey.family, survey.n)
-                if budget < DEFAULT_SUBSET_MODELS:
+                if budget < defaults.SUBSET_MODELS:
                     size = largest_search_size(problem.X.shape[1], budget)
                     budget_notes.append(
                         f"with {survey.n:,} rows the best-subset search was limited to {budget:,} "
@@ -376,8 +368,7 @@ def _criteria_parts(fits: dict, problem: Problem) -> pd.DataFrame:
 
 def _chosen_tables(chosen, problem, survey, design, folds, cv, splits) -> dict:
     """Tables about the suggested model and the sites: chosen, sites, curves, rug, vif."""
-    from .core.families import get_family
-    fam = get_family(survey.family)
+    fam = problem.family
     sd = design.X.std(axis=0)
     chosen_table = pd.DataFrame({
         "term": design.names, "estimate": chosen.coef, "estimate_std": chosen.coef * sd,

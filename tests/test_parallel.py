@@ -163,7 +163,7 @@ def test_long_table_fits_identical_on_every_backend(dask_cluster):
     # Half-samples of 24,000 rows: fitted by Newton steps on a sampled Gram
     # matrix, with passes summed in fixed pieces of rows. The data travel as
     # a Problem, which places its arrays on 64-byte boundaries on arrival.
-    from pathfinder.choose.cv import Problem
+    from pathfinder.choose.problem import Problem
 
     cluster, client = dask_cluster
     rng = np.random.default_rng(7)

@@ -61,9 +61,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 from scipy import linalg
-from scipy.special import gammaln, xlogy
 
-from ..core.families import get_family, null_intercept
+from ..core.families import get_family
 from ..errors import InputError
 
 LARGER_IS_BETTER = frozenset({"log_likelihood", "adjusted_r2", "deviance_explained"})
@@ -139,7 +138,7 @@ def path_degrees_of_freedom(fit, X, weights=None, *, offset=None) -> np.ndarray:
     Xs = (X[:, ever] - fit.center[ever]) / fit.scale[ever]   # standardised scale of the fit
     v = np.asarray(fit.term_weights, dtype=float)[ever]
     gram = None
-    if fam.name == "gaussian":
+    if fam.least_squares:
         gram = _centred_gram(Xs, w)                  # W = w at every step
     for k, lam in enumerate(fit.penalties):
         active = np.flatnonzero(nonzero[k, ever])
@@ -179,16 +178,7 @@ def _hat_trace(G, ridge):
 
 def _log_likelihood(family, y, mu, w):
     """Full log-likelihood of each column of ``mu`` (n, K); ``w`` sums to n."""
-    y = y[:, None]
-    wc = w[:, None]
-    if family == "gaussian":
-        sigma2 = (wc * (y - mu) ** 2).sum(axis=0) / w.sum()
-        return -0.5 * w.sum() * (np.log(2 * np.pi * sigma2) + 1.0)
-    if family == "binomial":
-        mu = np.clip(mu, 1e-300, 1.0 - 1e-16)
-        return (wc * (xlogy(y, mu) + xlogy(1.0 - y, 1.0 - mu))).sum(axis=0)
-    mu = np.maximum(mu, 1e-300)
-    return (wc * (xlogy(y, mu) - mu - gammaln(y + 1.0))).sum(axis=0)
+    return get_family(family).log_likelihood(y, mu, w)
 
 
 def _check_matches_fit(fit, fam, y, mu, w):
@@ -227,11 +217,11 @@ def information_criteria(fit, X, y, *, weights=None, offset=None,
 
     mu = fit.predict(X, kind="response", offset=off)          # (n, K)
     dev = _check_matches_fit(fit, fam, y, mu, w)
-    loglik = _log_likelihood(fam.name, y, mu, w)
+    loglik = fam.log_likelihood(y, mu, w)
     df = path_degrees_of_freedom(fit, X, w, offset=off)
 
     n = int(np.count_nonzero(w > 0))
-    k = df + 1.0 + (1.0 if (count_variance and fam.name == "gaussian") else 0.0)
+    k = df + 1.0 + (1.0 if (count_variance and fam.has_scale) else 0.0)
     aic = -2.0 * loglik + 2.0 * k
     room = n - k - 1.0
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -249,8 +239,8 @@ def information_criteria(fit, X, y, *, weights=None, offset=None,
         "aicc": aicc,
         "bic": bic,
     })
-    if fam.name == "gaussian":
-        b0 = null_intercept(fam, y, w, off)
+    if fam.least_squares:
+        b0 = fam.null_intercept(y, w, off)
         null_dev = fam.deviance(y, b0 + off, w)
         r2 = 1.0 - dev / null_dev
         with np.errstate(divide="ignore", invalid="ignore"):

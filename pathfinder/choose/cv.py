@@ -26,73 +26,11 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from functools import cached_property
-
-from ..core import fit_path
-from ..core.path import GRAM_MAX_TERMS
-from ..core.arrays import aligned
-from ..core.families import get_family, null_intercept
+from ..defaults import FOLD_TOL
 from .metrics import METRICS, score
+from .problem import Problem, run_here
 
 RULES = ("min", "one_se")
-FOLD_TOL = 1e-4   # convergence of the repeated fold fits (see cross_validate)
-
-
-@dataclass(frozen=True, eq=False)
-class Problem:
-    """What every fit of a run shares; it travels to each worker once."""
-
-    X: np.ndarray
-    y: np.ndarray
-    family: str
-    names: tuple
-    offset: np.ndarray | None = None
-    weights: np.ndarray | None = None
-    standardize: bool = True
-    term_weights: np.ndarray | None = None
-
-    ARRAYS = ("X", "y", "offset", "weights", "term_weights")
-
-    def __post_init__(self):
-        self._align()
-
-    def __setstate__(self, state):
-        # Unpickled in a worker: arrays from a network frame can start at any
-        # byte; place them as in the parent (see pathfinder.core.arrays).
-        self.__dict__.update(state)
-        self._align()
-
-    def _align(self):
-        for name in self.ARRAYS:
-            object.__setattr__(self, name, aligned(getattr(self, name)))
-
-    @property
-    def n(self) -> int:
-        return self.y.shape[0]
-
-    def fit(self, rows=None, **options):
-        shortcut = self.cross_products if rows is not None and self.weights is None else None
-        return fit_path(self.X, self.y, family=self.family, offset=self.offset,
-                        weights=self.weights, standardize=self.standardize,
-                        term_weights=self.term_weights, rows=rows, names=self.names,
-                        cross_products=shortcut, **options)
-
-    @cached_property
-    def cross_products(self):
-        """X'X of all rows, which speeds up Gaussian fits on folds (see fit_path)."""
-        if self.family != "gaussian" or self.X.shape[1] > GRAM_MAX_TERMS or self.X.shape[0] <= self.X.shape[1]:
-            return None
-        return self.X.T @ self.X
-
-    def part(self, values, rows):
-        return None if values is None else values[rows]
-
-    def linear_predictor(self, intercept, coef, rows):
-        """(len(rows), K) linear predictors for intercepts (K,) and coefficients (K, p)."""
-        eta = self.X[rows] @ coef.T + intercept
-        if self.offset is not None:
-            eta += self.offset[rows][:, None]
-        return eta
 
 
 @dataclass(frozen=True)
@@ -121,7 +59,7 @@ def score_path(problem: Problem, fit, rows, metrics, *, null_rows=None):
     Penalties the path did not reach (it stopped early) repeat the last
     fitted model, so every curve has the grid's length.
     """
-    fam = get_family(problem.family)
+    fam = problem.family
     eta = problem.linear_predictor(fit.intercept, fit.coef, rows)
     mu = fam.inverse_link(eta)
     y = problem.y[rows]
@@ -133,12 +71,12 @@ def score_path(problem: Problem, fit, rows, metrics, *, null_rows=None):
         w_train = problem.part(problem.weights, train)
         w_train = np.ones(len(train)) if w_train is None else w_train * len(train) / w_train.sum()
         off_train = problem.part(problem.offset, train)
-        b0 = null_intercept(fam, problem.y[train], w_train,
+        b0 = fam.null_intercept(problem.y[train], w_train,
                             np.zeros(len(train)) if off_train is None else off_train)
         off = problem.part(problem.offset, rows)
         mu_null = fam.inverse_link(b0 + (np.zeros(len(rows)) if off is None else off))
     for metric in metrics:
-        out[metric] = np.array([score(metric, y, mu[:, k], fam.name, w, mu_null)
+        out[metric] = np.array([score(metric, y, mu[:, k], fam, w, mu_null)
                                 for k in range(mu.shape[1])])
     return out
 
@@ -244,13 +182,9 @@ def cross_validate(problem: Problem, splits, *, mixes=(1.0,), metrics=("deviance
                                     penalty_ratio=penalty_ratio, **precision) for mix in mixes}
     tasks = fold_tasks(fits, splits, metrics, FOLD_TOL if fold_tol is None else fold_tol)
     problem.cross_products  # computed once here, shipped with the problem to workers
-    results = (run or _run_here)(run_fold, tasks, problem)
+    results = (run or run_here)(run_fold, tasks, problem)
     curves, picks, best_mix = summarise(fits, results, metrics, primary)
     notes = tuple(f"a fold's path at mix {r.mix:g} (fold {r.fold + 1}) stopped after "
                   f"{r.n_fitted} of {len(fits[r.mix].penalties)} penalties; its last model "
                   "stands in for the rest" for r in results if r.n_fitted < len(fits[r.mix].penalties))
     return CVResult(fits, curves, picks, best_mix, primary, notes)
-
-
-def _run_here(fn, tasks, shared):
-    return [fn(shared, task) for task in tasks]

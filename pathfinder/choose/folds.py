@@ -36,6 +36,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
+from ..core.families import get_family
 from ..errors import InputError
 
 SCHEMES = ("random", "stratified", "grouped", "spatial blocks", "given")
@@ -581,10 +582,8 @@ def _children(seed, count: int) -> list[np.random.Generator]:
 
 
 def _is_presence_absence(y, family) -> bool:
-    if family == "binomial":
-        return True
-    if family not in (None, "auto"):
-        return False
+    if family is not None and not (isinstance(family, str) and family == "auto"):
+        return get_family(family).binary
     values = np.asarray(y)
     if not np.issubdtype(values.dtype, np.number):
         return False
@@ -609,7 +608,7 @@ def make_folds(
 
     In order of preference: a fold column (``fold_labels``); spatial blocks
     (``coords`` and ``block_size``); groups; stratified by presence when the
-    response is presence/absence (``family="binomial"``, or a 0/1 response
+    response is presence/absence (a binary family such as ``"binomial"``, or a 0/1 response
     when the family is not given); otherwise random. With fewer groups or
     blocks than ``k`` the number of folds drops to match, with a note.
     ``repeats`` above 1 gives repeated cross-validation (see :func:`repeated`).

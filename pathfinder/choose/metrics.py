@@ -37,10 +37,9 @@ from typing import Callable, NamedTuple
 import numpy as np
 from scipy.special import xlogy
 
-from ..core.families import get_family
+from ..core.families import FAMILIES, get_family
 from ..errors import InputError
 
-ALL_FAMILIES = ("gaussian", "binomial", "poisson")
 
 
 # ---- checking the input once ---------------------------------------------------
@@ -77,22 +76,9 @@ def _check_probabilities(y, mu, metric):
 
 
 def _check_family_values(y, mu, family, metric):
-    if family == "binomial":
-        _check_probabilities(y, mu, metric)
-    elif family == "poisson":
-        if np.any(y < 0):
-            raise InputError(f"{metric}: observed counts must be non-negative")
-        if np.any(mu <= 0):
-            raise InputError(f"{metric}: predicted counts must be positive; "
-                             "predict on the response scale, not the link scale")
-
-
-def _family_name(family) -> str:
-    try:
-        return get_family(family).name
-    except ValueError:
-        raise InputError(f"unknown family {family!r}: use one of "
-                         f"{', '.join(ALL_FAMILIES)}") from None
+    """The family's own checks of observed values and predicted means."""
+    family.check_response(y, where=f"the observed values ({metric})")
+    family.check_means(mu, metric)
 
 
 def _weighted_mean(values, w):
@@ -107,10 +93,10 @@ def mean_deviance(y, mu, family, w=None) -> float:
     Gaussian: squared error; binomial: ``2 [y log(y/mu) + (1-y) log((1-y)/(1-mu))]``;
     Poisson: ``2 [y log(y/mu) - (y - mu)]``.
     """
-    name = _family_name(family)
+    fam = get_family(family)
     y, mu, w = _vectors(y, mu, w, "deviance")
-    _check_family_values(y, mu, name, "deviance")
-    return _weighted_mean(get_family(name).unit_deviance(y, mu), w)
+    _check_family_values(y, mu, fam, "deviance")
+    return _weighted_mean(fam.unit_deviance(y, mu), w)
 
 
 def mse(y, mu, w=None) -> float:
@@ -183,12 +169,11 @@ def deviance_explained(y, mu, mu_null, family, w=None) -> float:
     predictions of the intercept-only model (fitted on the training rows) for
     the same rows. Negative when the model does worse than that null model.
     """
-    name = _family_name(family)
+    fam = get_family(family)
     y, mu, w = _vectors(y, mu, w, "deviance_explained")
     _, mu_null, _ = _vectors(y, mu_null, w, "deviance_explained (null predictions)")
-    _check_family_values(y, mu, name, "deviance_explained")
-    _check_family_values(y, mu_null, name, "deviance_explained (null predictions)")
-    fam = get_family(name)
+    _check_family_values(y, mu, fam, "deviance_explained")
+    _check_family_values(y, mu_null, fam, "deviance_explained (null predictions)")
     null = fam.deviance(y, mu_null, w)
     if null <= 0:
         raise InputError("deviance_explained: the null model fits these rows perfectly "
@@ -199,22 +184,27 @@ def deviance_explained(y, mu, mu_null, family, w=None) -> float:
 # ---- the registry --------------------------------------------------------------
 
 class Metric(NamedTuple):
-    """A metric, the families it suits and its direction."""
+    """A metric, the families it suits (each family lists its metrics) and its direction."""
 
     function: Callable
     families: tuple
     larger_is_better: bool
 
 
-METRICS = {
-    "deviance": Metric(mean_deviance, ALL_FAMILIES, False),
-    "mse": Metric(mse, ALL_FAMILIES, False),
-    "mae": Metric(mae, ALL_FAMILIES, False),
-    "auc": Metric(auc, ("binomial",), True),
-    "brier": Metric(brier, ("binomial",), False),
-    "log_loss": Metric(log_loss, ("binomial",), False),
-    "deviance_explained": Metric(deviance_explained, ALL_FAMILIES, True),
-}
+def _metric(name, function, larger_is_better):
+    suits = tuple(f.name for f in FAMILIES.values() if name in f.metrics)
+    return name, Metric(function, suits, larger_is_better)
+
+
+METRICS = dict([
+    _metric("deviance", mean_deviance, False),
+    _metric("mse", mse, False),
+    _metric("mae", mae, False),
+    _metric("auc", auc, True),
+    _metric("brier", brier, False),
+    _metric("log_loss", log_loss, False),
+    _metric("deviance_explained", deviance_explained, True),
+])
 """Metric name -> (function, families it applies to, larger_is_better).
 
 ``deviance`` and ``deviance_explained`` need the family (and the latter the
@@ -223,9 +213,15 @@ The Poisson deviance is ``deviance`` for the Poisson family.
 """
 
 
+def metrics_for(family) -> tuple:
+    """The held-out metrics that make sense for ``family``, in the registry's order."""
+    fam = get_family(family)
+    return tuple(k for k in METRICS if k in fam.metrics)
+
+
 def default_metric(family) -> str:
     """The metric used unless the user asks for another: the deviance, for every family."""
-    _family_name(family)
+    get_family(family)
     return "deviance"
 
 
@@ -235,18 +231,17 @@ def score(metric, y, mu, family, w=None, mu_null=None) -> float:
     ``mu_null`` (the null model's predictions) is needed only for
     ``deviance_explained``.
     """
-    name = _family_name(family)
+    fam = get_family(family)
     if metric not in METRICS:
         raise InputError(f"unknown metric {metric!r}: use one of {', '.join(METRICS)}")
-    entry = METRICS[metric]
-    if name not in entry.families:
-        raise InputError(f"the metric {metric!r} does not apply to a {name} response; "
-                         f"use one of {', '.join(k for k, m in METRICS.items() if name in m.families)}")
+    if metric not in fam.metrics:
+        raise InputError(f"the metric {metric!r} does not apply to a {fam.name} response; "
+                         f"use one of {', '.join(metrics_for(fam))}")
     if metric == "deviance":
-        return mean_deviance(y, mu, name, w)
+        return mean_deviance(y, mu, fam, w)
     if metric == "deviance_explained":
         if mu_null is None:
             raise InputError("deviance_explained needs the null model's predictions (mu_null) "
                              "for the same rows")
-        return deviance_explained(y, mu, mu_null, name, w)
-    return entry.function(y, mu, w)
+        return deviance_explained(y, mu, mu_null, fam, w)
+    return METRICS[metric].function(y, mu, w)

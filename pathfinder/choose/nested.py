@@ -19,14 +19,15 @@ from itertools import combinations
 import numpy as np
 import pandas as pd
 
-from ..core.families import get_family
-from .cv import FOLD_TOL, Problem, cross_validate
+from ..defaults import FOLD_TOL, INNER_FOLDS, METRIC, NESTED_PENALTIES, N_PENALTIES
+from .cv import cross_validate
 from .folds import make_folds
 from .metrics import score
+from .problem import (ELASTIC_NET, LASSO, RELAXED_LASSO, RIDGE, Choice, Problem, refit,
+                      run_here, spawn_seeds)
 from .relaxed import relaxed_lasso
 
 
-NESTED_PENALTIES = 50   # grid size of the paths inside outer folds
 
 
 @dataclass(frozen=True, eq=False)
@@ -34,7 +35,7 @@ class FoldPlan:
     """How folds are made, so that inner folds follow the run's own scheme."""
 
     k: int = 10
-    family: str | None = None
+    family: object = None      # a family (or its name); None: judged from the response
     groups: np.ndarray | None = None
     coords: np.ndarray | None = None
     block_size: float | None = None
@@ -49,25 +50,6 @@ class FoldPlan:
                           block_size=self.block_size, fold_labels=sub(self.fold_labels), seed=seed)
 
 
-@dataclass(frozen=True, eq=False)
-class Choice:
-    """One chosen model: which method and rule, and its coefficients."""
-
-    method: str
-    rule: str
-    mix: float
-    penalty: float
-    intercept: float
-    coef: np.ndarray
-    inner_score: float
-    names: tuple
-    relax: float | None = None
-
-    @property
-    def terms(self) -> tuple:
-        return tuple(n for n, b in zip(self.names, self.coef) if b != 0)
-
-
 def choices(cv, relaxed=None) -> list[Choice]:
     """The models each method and pick rule chose from a cross-validation.
 
@@ -78,10 +60,10 @@ def choices(cv, relaxed=None) -> list[Choice]:
     picks = cv.picks
     out = []
     mixes = sorted(cv.fits)
-    plan = [("lasso", 1.0), ("ridge", 0.0)]
+    plan = [(LASSO, 1.0), (RIDGE, 0.0)]
     middle = picks[(picks.mix > 0) & (picks.mix < 1) & (picks.rule == "min")]
     if len(middle):
-        plan.append(("elastic net", float(middle.loc[middle.cv_mean.idxmin(), "mix"])))
+        plan.append((ELASTIC_NET, float(middle.loc[middle.cv_mean.idxmin(), "mix"])))
     for method, mix in plan:
         if mix not in mixes:
             continue
@@ -94,7 +76,7 @@ def choices(cv, relaxed=None) -> list[Choice]:
         lasso = cv.fits[1.0]
         for _, pick in relaxed.picks.iterrows():
             b0, b = relaxed.models[pick.rule]
-            out.append(Choice("relaxed lasso", pick.rule, 1.0, float(pick.penalty), float(b0), b,
+            out.append(Choice(RELAXED_LASSO, pick.rule, 1.0, float(pick.penalty), float(b0), b,
                               float(pick.cv_mean), lasso.names, relax=float(pick.relax)))
     return out
 
@@ -125,7 +107,7 @@ def run_outer_fold(problem: Problem, task: OuterTask) -> list[dict]:
     relaxed = None
     if task.relax and 1.0 in cv.fits:
         relaxed = relaxed_lasso(problem, cv.fits[1.0], splits, metric=task.metric, rows=task.train)
-    fam = get_family(problem.family)
+    fam = problem.family
     y, w = problem.y[task.test], problem.part(problem.weights, task.test)
     rows = []
     made = choices(cv, relaxed)
@@ -133,7 +115,7 @@ def run_outer_fold(problem: Problem, task: OuterTask) -> list[dict]:
         made += selector.choose(problem, task.train, task.seed)
     for choice in made:
         eta = problem.linear_predictor(np.array([choice.intercept]), choice.coef[None, :], task.test)
-        outer = score(task.metric, y, fam.inverse_link(eta[:, 0]), fam.name, w)
+        outer = score(task.metric, y, fam.inverse_link(eta[:, 0]), fam, w)
         rows.append({"fold": task.fold, "method": choice.method, "rule": choice.rule,
                      "mix": choice.mix, "penalty": choice.penalty, "n_terms": len(choice.terms),
                      "terms": ";".join(choice.terms), "inner_score": choice.inner_score,
@@ -148,8 +130,8 @@ def _all_splits(folds):
     return out
 
 
-def nested_cv(problem: Problem, outer_splits, plan: FoldPlan, *, seed, inner_k=5, mixes=(1.0,),
-              metric="deviance", n_penalties=100, penalty_ratio=None, relax=True, selectors=(),
+def nested_cv(problem: Problem, outer_splits, plan: FoldPlan, *, seed, inner_k=INNER_FOLDS, mixes=(1.0,),
+              metric=METRIC, n_penalties=N_PENALTIES, penalty_ratio=None, relax=True, selectors=(),
               run=None) -> pd.DataFrame:
     """Outer-fold scores of every method and rule: one row per (outer fold, method, rule).
 
@@ -157,14 +139,14 @@ def nested_cv(problem: Problem, outer_splits, plan: FoldPlan, *, seed, inner_k=5
     ``seed``), so the result does not depend on where the folds ran.
     ``selectors`` (see :mod:`pathfinder.choose.selectors`) add methods that
     are not a penalty pick, each redone on every outer training set. Inside
-    the outer folds the paths use at most 50 penalties and converge to FOLD_TOL:
+    the outer folds the paths use at most NESTED_PENALTIES penalties and converge to FOLD_TOL:
     ample for choosing, and it keeps the whole procedure affordable.
     """
-    seeds = [int(s.generate_state(1)[0]) for s in np.random.SeedSequence(seed).spawn(len(outer_splits))]
+    seeds = spawn_seeds(seed, len(outer_splits))
     tasks = [OuterTask(k, train, test, seeds[k], plan, inner_k, tuple(float(m) for m in mixes), metric,
                        min(int(n_penalties), NESTED_PENALTIES), penalty_ratio, relax, tuple(selectors))
              for k, (train, test) in enumerate(outer_splits)]
-    results = (run or (lambda fn, ts, shared: [fn(shared, t) for t in ts]))(run_outer_fold, tasks, problem)
+    results = (run or run_here)(run_outer_fold, tasks, problem)
     return pd.DataFrame([row for rows in results for row in rows])
 
 
@@ -214,7 +196,7 @@ def recommend(comparison: pd.DataFrame | None, full_choices) -> Choice:
     """
     if comparison is None or comparison.outer_mean.isna().all():
         for choice in full_choices:
-            if choice.method == "lasso" and choice.rule == "one_se":
+            if choice.method == LASSO and choice.rule == "one_se":
                 return choice
         return full_choices[0]
     table = comparison.reset_index(drop=True)
@@ -237,8 +219,7 @@ def held_out_predictions(problem: Problem, splits, choice: Choice, grid) -> np.n
     relaxation. Methods without a penalty (stability selection, subsets)
     refit their chosen terms without the fold.
     """
-    from .relaxed import refit
-    fam = get_family(problem.family)
+    fam = problem.family
     out = np.full(problem.n, np.nan)
     penalised = np.isfinite(choice.penalty)
     steps = grid[grid >= choice.penalty * (1 - 1e-12)] if penalised else None

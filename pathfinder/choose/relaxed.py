@@ -20,25 +20,11 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ..core.families import get_family
-from ..core.glm import fit_glm
-from .cv import FoldTask, Problem, _pad, pick_steps, selected_terms
+from .cv import FoldTask, _pad, pick_steps, selected_terms
 from .metrics import METRICS, score
+from .problem import Problem, refit, run_here
 
 RELAX_GRID = (0.0, 0.25, 0.5, 0.75, 1.0)
-REFIT_RIDGE = 1e-6
-
-
-def refit(problem: Problem, rows, active) -> tuple[float, np.ndarray]:
-    """Unpenalised GLM (a whisker of ridge) on the columns ``active``, rows ``rows``."""
-    coef = np.zeros(problem.X.shape[1])
-    y = problem.y[rows]
-    w = problem.part(problem.weights, rows)
-    off = problem.part(problem.offset, rows)
-    fit = fit_glm(problem.X[np.ix_(rows, active)], y, problem.family, offset=off, weights=w,
-                  ridge=REFIT_RIDGE)
-    coef[active] = fit.coef
-    return fit.intercept, coef
 
 
 def refit_path(problem: Problem, fit, rows) -> tuple[np.ndarray, np.ndarray]:
@@ -68,7 +54,7 @@ class RelaxedScores:
 
 def run_relaxed_fold(problem: Problem, task: FoldTask) -> RelaxedScores:
     """One fold: lasso path on the training rows, refits, scores of each relaxation."""
-    fam = get_family(problem.family)
+    fam = problem.family
     fit = problem.fit(rows=task.train, mix=1.0, penalties=task.penalties, tol=task.tol)
     b0_refit, b_refit = refit_path(problem, fit, task.train)
     y, w = problem.y[task.test], problem.part(problem.weights, task.test)
@@ -78,7 +64,7 @@ def run_relaxed_fold(problem: Problem, task: FoldTask) -> RelaxedScores:
     for relax in RELAX_GRID:
         b0, b = blend(fit, b0_refit, b_refit, relax)
         mu = fam.inverse_link(problem.linear_predictor(b0, b, task.test))
-        held[relax] = _pad(np.array([score(metric, y, mu[:, k], fam.name, w)
+        held[relax] = _pad(np.array([score(metric, y, mu[:, k], fam, w)
                                      for k in range(mu.shape[1])]), K)
     return RelaxedScores(task.fold, held)
 
@@ -99,7 +85,7 @@ def relaxed_lasso(problem: Problem, lasso_fit, splits, *, metric="deviance", row
     """
     tasks = [FoldTask(1.0, k, train, test, lasso_fit.penalties, (metric,))
              for k, (train, test) in enumerate(splits)]
-    results = (run or (lambda fn, ts, shared: [fn(shared, t) for t in ts]))(
+    results = (run or run_here)(
         run_relaxed_fold, tasks, problem)
     K = len(lasso_fit.penalties)
     larger = METRICS[metric].larger_is_better

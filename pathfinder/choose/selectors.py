@@ -21,37 +21,21 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..core.glm import fit_glm
-from .cv import Problem
-from .nested import Choice
+from ..core.families import get_family
+from ..defaults import STABILITY_PAIRS, SUBSET_MODELS, SUBSET_ROW_MODELS
+from .problem import BEST_SUBSET, STABILITY, STEPWISE, Choice, Problem, refit, subproblem
 from .stability import stability_selection
 from .subsets import best_subsets, stepwise
 
-REFIT_RIDGE = 1e-6
 
-
-def refit_terms(problem: Problem, rows, active) -> tuple[float, np.ndarray]:
-    """Unpenalised GLM (a whisker of ridge) on the columns ``active`` and the rows ``rows``."""
-    coef = np.zeros(problem.X.shape[1])
-    fit = fit_glm(problem.X[np.ix_(rows, active)], problem.y[rows], problem.family,
-                  offset=problem.part(problem.offset, rows), weights=problem.part(problem.weights, rows),
-                  ridge=REFIT_RIDGE)
-    coef[active] = fit.coef
-    return fit.intercept, coef
-
-
-DEFAULT_SUBSET_MODELS = 50_000
-SUBSET_ROW_MODELS = 2 * 10**8  # binomial / Poisson: models x rows the default budget allows
-
-
-def default_subset_budget(family: str, n_rows: int) -> int:
-    """The best-subset budget when none is given: 50,000 models, and for
-    binomial and Poisson responses (each model is fitted on every row) no more
-    than 2e8 model-rows (a few seconds a search on one core, measured), so a
-    long table keeps the search short."""
-    if family == "gaussian":        # fitted from the cross-products: the rows cost nothing
-        return DEFAULT_SUBSET_MODELS
-    return max(1, min(DEFAULT_SUBSET_MODELS, SUBSET_ROW_MODELS // max(int(n_rows), 1)))
+def default_subset_budget(family, n_rows: int) -> int:
+    """The best-subset budget when none is given: ``SUBSET_MODELS`` models, and
+    for families fitted row by row (each model is fitted on every row) no more
+    than ``SUBSET_ROW_MODELS`` model-rows (a few seconds a search on one core,
+    measured), so a long table keeps the search short."""
+    if get_family(family).least_squares:   # fitted from the cross-products: the rows cost nothing
+        return SUBSET_MODELS
+    return max(1, min(SUBSET_MODELS, SUBSET_ROW_MODELS // max(int(n_rows), 1)))
 
 
 def largest_search_size(p: int, budget: int) -> int:
@@ -67,7 +51,7 @@ def largest_search_size(p: int, budget: int) -> int:
 class StabilitySelector:
     """Stability selection followed by a refit on the stable terms."""
 
-    n_pairs: int = 50
+    n_pairs: int = STABILITY_PAIRS
     threshold: float | None = None
     pfer: float | None = None
     mix: float = 1.0
@@ -85,8 +69,8 @@ class StabilitySelector:
             units=self.units if rows is None else pick(self.units),
             term_groups=list(self.term_groups) if self.term_groups else None, seed=seed, run=run)
         active = np.flatnonzero(result.stable)
-        b0, b = refit_terms(sub, np.arange(sub.n), active)
-        return result, [Choice("stability selection", "refit", self.mix, float("nan"), b0, b,
+        b0, b = refit(sub, None, active)
+        return result, [Choice(STABILITY, "refit", self.mix, float("nan"), b0, b,
                                float("nan"), problem.names)]
 
     def choose(self, problem: Problem, rows, seed):
@@ -97,7 +81,7 @@ class StabilitySelector:
 class SubsetSelector:
     """Best subset by AICc and BIC (when the search fits the budget) and stepwise by AIC."""
 
-    budget: int = 50_000
+    budget: int = SUBSET_MODELS
 
     def max_size(self, p: int) -> int:
         return largest_search_size(p, self.budget)
@@ -111,20 +95,12 @@ class SubsetSelector:
             search = best_subsets(problem, max_size=size, rows=base, max_models=self.budget, run=run)
             for criterion in ("aicc", "bic"):
                 b0, b, _ = search.best(criterion)
-                out.append(Choice("best subset", criterion, float("nan"), float("nan"), b0, b,
+                out.append(Choice(BEST_SUBSET, criterion, float("nan"), float("nan"), b0, b,
                                   float("nan"), problem.names))
         steps = stepwise(problem, direction="both", criterion="aic", rows=base)
-        out.append(Choice("stepwise", "aic", float("nan"), float("nan"), float(steps.intercept),
+        out.append(Choice(STEPWISE, "aic", float("nan"), float("nan"), float(steps.intercept),
                           np.asarray(steps.coef, dtype=float), float("nan"), problem.names))
         return search, steps, out
 
     def choose(self, problem: Problem, rows, seed):
         return self.run(problem, rows)[2]
-
-
-def subproblem(problem: Problem, rows) -> Problem:
-    """The problem restricted to ``rows`` (a copy of those rows)."""
-    part = problem.part
-    return Problem(np.asfortranarray(problem.X[rows]), problem.y[rows], problem.family, problem.names,
-                   offset=part(problem.offset, rows), weights=part(problem.weights, rows),
-                   standardize=problem.standardize, term_weights=problem.term_weights)

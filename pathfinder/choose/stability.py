@@ -69,12 +69,11 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from ..diagnostics.collinearity import DEFAULT_THRESHOLD as CORRELATION_THRESHOLD
 from ..diagnostics.collinearity import correlation_clusters, correlation_matrix
 from ..errors import InputError
-from .cv import FOLD_TOL, Problem
+from ..defaults import CORRELATION_THRESHOLD, FOLD_TOL, N_PENALTIES, STABILITY_PAIRS, STABILITY_THRESHOLD
+from .problem import Problem, run_here
 
-DEFAULT_THRESHOLD = 0.75
 SAMPLINGS = ("halves", "bootstrap")
 # The automatic grid is cut this many steps after the full-data path first
 # holds more than CUT_FACTOR * q terms.
@@ -250,7 +249,7 @@ def _split_units(profile, rng) -> np.ndarray:
         best_move = int(np.argmin(moved))
         best, change = moved[best_move], ("move", best_move)
         a, b = np.flatnonzero(side == 0), np.flatnonzero(side == 1)
-        if a.size * b.size <= MAX_SWAPS:
+        if 0 < a.size * b.size <= MAX_SWAPS:      # a swap needs a unit on each side
             swapped = cost(d - 2 * profile[a][:, None, :] + 2 * profile[b][None, :, :])
             i, j = np.unravel_index(int(np.argmin(swapped)), swapped.shape)
             if swapped[i, j] < best:
@@ -425,20 +424,20 @@ class StabilityResult:
 # --------------------------------------------------------------------------
 
 
-def stability_selection(problem: Problem, *, mix=1.0, n_pairs=50, threshold=None, pfer=None,
+def stability_selection(problem: Problem, *, mix=1.0, n_pairs=STABILITY_PAIRS, threshold=None, pfer=None,
                         q=None, strata=None, units=None, penalties=None, term_groups=None,
                         correlation_threshold=CORRELATION_THRESHOLD, sampling="halves",
-                        n_penalties=100, penalty_ratio=None, seed, run=None,
+                        n_penalties=N_PENALTIES, penalty_ratio=None, seed, run=None,
                         tol=FOLD_TOL) -> StabilityResult:
     """Stability selection with complementary pairs of halves.
 
     Parameters
     ----------
-    problem : the data of the run (:class:`pathfinder.choose.cv.Problem`).
+    problem : the data of the run (:class:`pathfinder.choose.problem.Problem`).
     mix : 1 the lasso, below 1 the elastic net.
     n_pairs : B, the number of complementary pairs (2 B fits).
     threshold : selection frequency a term needs to be stable, above 0.5
-        (default 0.75); or give ``pfer`` instead.
+        (default ``STABILITY_THRESHOLD``, 0.75); or give ``pfer`` instead.
     pfer : target expected number of terms wrongly called stable; the
         threshold is then derived from the bound (:func:`threshold_for_pfer`).
     q : the number of terms a half may select on average over the region
@@ -483,7 +482,7 @@ def stability_selection(problem: Problem, *, mix=1.0, n_pairs=50, threshold=None
                 f"a target of {float(pfer):g} false selections cannot be met with q = {q} and "
                 f"{p_counted} terms (even a threshold of 1 allows {q * q / p_counted:.3g}); "
                 f"give a smaller q")
-    threshold = DEFAULT_THRESHOLD if threshold is None else float(threshold)
+    threshold = STABILITY_THRESHOLD if threshold is None else float(threshold)
     pmb_bound(q, threshold, p_counted)  # checks the threshold with one clear line
     groups = _term_groups(term_groups, names)
 
@@ -505,7 +504,7 @@ def stability_selection(problem: Problem, *, mix=1.0, n_pairs=50, threshold=None
         drawn = [(single[2 * b], single[2 * b + 1]) for b in range(n_pairs)]
     tasks = [PairTask(b, pair, grid, mix, tol) for b, pair in enumerate(drawn)]
     problem.cross_products  # computed once here, shipped with the problem to workers
-    results = (run or _run_here)(run_pair, tasks, problem)
+    results = (run or run_here)(run_pair, tasks, problem)
     selected = np.concatenate([r.selected for r in results], axis=0)   # (2B, K, p)
 
     # 3. Frequencies, the region and the stable set.
@@ -596,10 +595,6 @@ def _fit_notes(results, K, n_fits) -> list:
         notes.append(f"subsample fits warned: {'; '.join(list(messages)[:3])}"
                      + (" (and more)" if len(messages) > 3 else ""))
     return notes
-
-
-def _run_here(fn, tasks, shared):
-    return [fn(shared, task) for task in tasks]
 
 
 # --------------------------------------------------------------------------

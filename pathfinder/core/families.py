@@ -1,25 +1,33 @@
-"""Response families: the link, the variance and the deviance of each GLM.
+"""Response families: one class per family, the only place that knows them by name.
 
 Three families cover the responses of habitat models:
 
-* ``gaussian``  a continuous measure, identity link;
-* ``binomial``  presence/absence (or a proportion), logit link;
-* ``poisson``   a count, log link (survey effort enters as an offset).
+* :class:`Gaussian`  a continuous measure (cover, biomass), identity link;
+* :class:`Binomial`  presence/absence (or a proportion), logit link;
+* :class:`Poisson`   a count, log link (survey effort enters as an offset).
 
-Each family is a small frozen object of plain vectorised functions. The
-deviance is the usual GLM deviance (twice the log-likelihood ratio against the
-saturated model), so that the penalised objective of the fitting core is
-``sum(w * deviance_i) / (2 n) + penalty``.
+Each family object holds everything the rest of pathfinder asks about a
+response: its link and inverse link, variance function, unit deviance and
+full log-likelihood, the intercept-only fit, which responses it accepts,
+which code selects its row function in the compiled kernels, which
+held-out metrics make sense for it and the words a reader sees. Code outside
+this module asks the object (``family.binary``, ``family.least_squares``,
+``family.metrics``) and never compares a family's name, so adding a family
+means one class here, its row in the compiled kernels and its reference
+tests. (The layout follows the family classes of statsmodels, one class per
+family exposing deviance, log-likelihood, variance and link.)
+
+The deviance is the usual GLM deviance (twice the log-likelihood ratio
+against the saturated model), so the penalised objective of the fitting core
+is ``sum(w * deviance_i) / (2 n) + penalty``.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Callable
-
 import numpy as np
-from scipy.special import expit, xlogy
+from scipy.special import expit, gammaln, xlogy
 
+from ..errors import InputError
 from . import kernels
 
 # Bounds that keep the working weights of a nearly separated binomial fit, or
@@ -27,16 +35,42 @@ from . import kernels
 _PROB_EPS = 1e-5
 _ETA_MAX = 30.0
 
+# Codes of the row functions in the compiled kernels (core/kernels.py,
+# core/kernels_subsets.py); the Gaussian rows need no function of their own.
+GAUSSIAN_CODE, BINOMIAL_CODE, POISSON_CODE = 0, 1, 2
 
-@dataclass(frozen=True)
+COMMON_METRICS = ("deviance", "mse", "mae", "deviance_explained")
+
+
 class Family:
-    name: str
-    link: str
-    inverse_link: Callable[[np.ndarray], np.ndarray]
-    link_fn: Callable[[np.ndarray], np.ndarray]
-    variance: Callable[[np.ndarray], np.ndarray]
-    unit_deviance: Callable[[np.ndarray, np.ndarray], np.ndarray]
-    canonical: bool = True
+    """What every family provides; subclasses fill in the arithmetic."""
+
+    name: str = ""
+    link_name: str = ""
+    code: int = -1                 # row function of the compiled kernels
+    least_squares = False          # the deviance is a residual sum of squares (closed-form fits)
+    binary = False                 # presence/absence: folds are stratified by it, AUC applies
+    has_scale = False              # an error variance that criteria may count as a parameter
+    metrics: tuple = COMMON_METRICS
+    row_bound = 0.0                # the compiled row functions' floor or cap (see subclasses)
+    kind = ""                      # the response in a reader's words
+
+    # ---- arithmetic ------------------------------------------------------
+    def inverse_link(self, eta):
+        raise NotImplementedError
+
+    def link(self, mu):
+        raise NotImplementedError
+
+    def variance(self, mu):
+        raise NotImplementedError
+
+    def unit_deviance(self, y, mu):
+        raise NotImplementedError
+
+    def log_likelihood(self, y, mu, w):
+        """Full log-likelihood of each column of ``mu`` (n, K) (or of ``mu`` (n,)); ``w`` sums to n."""
+        raise NotImplementedError
 
     def deviance(self, y, mu, w) -> float:
         """Weighted total deviance ``sum(w * d(y, mu))``."""
@@ -51,85 +85,228 @@ class Family:
         separated binomial fit or a vanishing Poisson mean cannot give a zero
         weight. Returns ``(deviance, W, resid, mu)``.
         """
-        if self.name == "gaussian":
-            r = y - eta
-            return float(np.dot(w, r * r)), w, r, eta
         n = y.shape[0]
         W, resid, mu = np.empty(n), np.empty(n), np.empty(n)
-        binomial = self.name == "binomial"
-        dev = kernels.glm_evaluate(y, eta, w, binomial, row_bound(self.name), W, resid, mu)
+        dev = kernels.glm_evaluate(y, eta, w, self.code, self.row_bound, W, resid, mu)
         return dev, W, resid, mu
 
+    def working_weights(self, eta, w):
+        """The IRLS weights ``w V(mu)`` alone, the variance floored as in :meth:`evaluate`."""
+        return self.evaluate(np.zeros(eta.shape[0]), np.ascontiguousarray(eta), w)[1]
 
-def row_bound(name: str) -> float:
-    """The compiled row functions' bound: the binomial variance floor, or the
-    largest Poisson linear predictor."""
-    return _PROB_EPS * (1.0 - _PROB_EPS) if name == "binomial" else _ETA_MAX
+    # ---- the intercept-only model ----------------------------------------
+    def start_intercept(self, ybar: float) -> float:
+        """The link of the weighted mean response (the null fit without offset)."""
+        return float(self.link(np.array([ybar]))[0])
+
+    def null_intercept(self, y, w, offset) -> float:
+        """Intercept of the intercept-only model (with offset), by Newton steps.
+
+        Without an offset this is the link of the weighted mean; with one it is
+        solved exactly (a one-parameter GLM).
+        """
+        ybar = float(np.dot(w, y) / w.sum())
+        b0 = self.start_intercept(ybar)
+        if not np.any(offset):
+            return b0
+        b0 -= float(np.dot(w, offset) / w.sum())
+        for _ in range(100):
+            mu = self.inverse_link(b0 + offset)
+            grad = float(np.dot(w, y - mu))
+            hess = float(np.dot(w, self.variance(mu)))
+            step = grad / max(hess, 1e-300)
+            b0 += step
+            if abs(step) < 1e-12 * (1 + abs(b0)):
+                break
+        return b0
+
+    # ---- what the family accepts -----------------------------------------
+    def check_response(self, y, where="the response") -> None:
+        """Refuse responses the family cannot model, with one line saying what to do."""
+
+    def check_means(self, mu, where) -> None:
+        """Refuse predicted means outside the family's range (a link-scale slip)."""
+
+    # ---- words -------------------------------------------------------------
+    def mean_words(self, response: str) -> str:
+        """What a prediction of this family is, in a reader's words."""
+        return response
+
+    def saturation_message(self, lam: float) -> str:
+        return (f"the path stopped at penalty {lam:.4g}: the model fits the data almost "
+                "perfectly (deviance explained > 0.999)")
+
+    def __repr__(self):
+        return f"{type(self).__name__}()"
+
+    def __str__(self):
+        return self.name
+
+    def __eq__(self, other):
+        # Equal to its own name too, so a family looks up tables keyed by name.
+        if isinstance(other, str):
+            return other.lower() == self.name
+        return isinstance(other, Family) and other.name == self.name
+
+    def __hash__(self):
+        return hash(self.name)
+
+    def __reduce__(self):              # one instance per family, also in workers
+        return (get_family, (self.name,))
 
 
-def _gaussian_dev(y, mu):
-    return (y - mu) ** 2
+class Gaussian(Family):
+    """A continuous measure: identity link, constant variance, deviance = squared error."""
+
+    name, link_name, code = "gaussian", "identity", GAUSSIAN_CODE
+    least_squares = True
+    has_scale = True
+    kind = "continuous measure"
+
+    def inverse_link(self, eta):
+        return eta
+
+    def link(self, mu):
+        return mu
+
+    def variance(self, mu):
+        return np.ones_like(mu)
+
+    def unit_deviance(self, y, mu):
+        return (y - mu) ** 2
+
+    def log_likelihood(self, y, mu, w):
+        """With the maximum-likelihood variance ``sum(w (y - mu)^2) / sum(w)`` plugged in."""
+        y, mu, wc = _columns(y, mu, w)
+        sigma2 = (wc * (y - mu) ** 2).sum(axis=0) / w.sum()
+        return -0.5 * w.sum() * (np.log(2 * np.pi * sigma2) + 1.0)
+
+    def evaluate(self, y, eta, w):
+        r = y - eta
+        return float(np.dot(w, r * r)), w, r, eta
+
+    def null_intercept(self, y, w, offset) -> float:
+        return float(np.dot(w, y) / w.sum()) - float(np.dot(w, offset) / w.sum())
+
+    def working_weights(self, eta, w):
+        return w
 
 
-def _binomial_dev(y, mu):
-    mu = np.clip(mu, 1e-300, 1.0 - 1e-16)
-    return 2.0 * (xlogy(y, y / mu) + xlogy(1.0 - y, (1.0 - y) / (1.0 - mu)))
+class Binomial(Family):
+    """Presence/absence or a proportion: logit link, variance mu (1 - mu)."""
+
+    name, link_name, code = "binomial", "logit", BINOMIAL_CODE
+    binary = True
+    metrics = COMMON_METRICS + ("auc", "brier", "log_loss")
+    row_bound = _PROB_EPS * (1.0 - _PROB_EPS)     # variance floor
+    kind = "presence/absence"
+
+    def inverse_link(self, eta):
+        return expit(eta)
+
+    def link(self, mu):
+        mu = np.clip(mu, 1e-12, 1 - 1e-12)
+        return np.log(mu / (1.0 - mu))
+
+    def variance(self, mu):
+        return mu * (1.0 - mu)
+
+    def unit_deviance(self, y, mu):
+        mu = np.clip(mu, 1e-300, 1.0 - 1e-16)
+        return 2.0 * (xlogy(y, y / mu) + xlogy(1.0 - y, (1.0 - y) / (1.0 - mu)))
+
+    def working_weights(self, eta, w):
+        mu = expit(eta)
+        return w * np.maximum(mu * (1 - mu), self.row_bound)
+
+    def log_likelihood(self, y, mu, w):
+        y, mu, wc = _columns(y, mu, w)
+        mu = np.clip(mu, 1e-300, 1.0 - 1e-16)
+        return (wc * (xlogy(y, mu) + xlogy(1.0 - y, 1.0 - mu))).sum(axis=0)
+
+    def check_response(self, y, where="the response"):
+        if np.any(y < 0) or np.any(y > 1):
+            raise InputError(f"a binomial response must lie between 0 and 1 (0/1 for "
+                             f"presence/absence); check {where} or choose another family")
+
+    def check_means(self, mu, where):
+        if np.any((mu < 0) | (mu > 1)):
+            raise InputError(f"{where}: predictions must be probabilities between 0 and 1; "
+                             "predict on the response scale, not the link scale")
+
+    def mean_words(self, response):
+        return f"chance of {response}"
+
+    def saturation_message(self, lam):
+        return (f"the path stopped at penalty {lam:.4g}: the model separates presences from "
+                "absences almost perfectly (deviance explained > 0.999); smaller penalties "
+                "would give unbounded coefficients")
 
 
-def _poisson_dev(y, mu):
-    mu = np.maximum(mu, 1e-300)
-    return 2.0 * (xlogy(y, y / mu) - (y - mu))
+class Poisson(Family):
+    """A count: log link, variance mu."""
+
+    name, link_name, code = "poisson", "log", POISSON_CODE
+    row_bound = _ETA_MAX                           # largest linear predictor
+    kind = "count"
+
+    def inverse_link(self, eta):
+        return np.exp(np.minimum(eta, _ETA_MAX))
+
+    def link(self, mu):
+        return np.log(np.maximum(mu, 1e-300))
+
+    def variance(self, mu):
+        return mu
+
+    def unit_deviance(self, y, mu):
+        mu = np.maximum(mu, 1e-300)
+        return 2.0 * (xlogy(y, y / mu) - (y - mu))
+
+    def working_weights(self, eta, w):
+        return w * np.maximum(np.exp(np.minimum(eta, self.row_bound)), 1e-10)
+
+    def log_likelihood(self, y, mu, w):
+        y, mu, wc = _columns(y, mu, w)
+        mu = np.maximum(mu, 1e-300)
+        return (wc * (xlogy(y, mu) - mu - gammaln(y + 1.0))).sum(axis=0)
+
+    def check_response(self, y, where="the response"):
+        if np.any(y < 0):
+            raise InputError(f"a Poisson response must be non-negative counts; check {where} "
+                             "or choose another family")
+
+    def check_means(self, mu, where):
+        if np.any(mu <= 0):
+            raise InputError(f"{where}: predicted counts must be positive; "
+                             "predict on the response scale, not the link scale")
+
+    def mean_words(self, response):
+        return f"expected {response}"
 
 
-def _logit(mu):
-    mu = np.clip(mu, 1e-12, 1 - 1e-12)
-    return np.log(mu / (1.0 - mu))
+def _columns(y, mu, w):
+    """y, mu and w shaped to broadcast over the columns of ``mu`` (n, K) or (n,)."""
+    mu = np.asarray(mu, dtype=float)
+    if mu.ndim == 2:
+        return np.asarray(y)[:, None], mu, np.asarray(w)[:, None]
+    return np.asarray(y), mu, np.asarray(w)
 
 
-def _exp_capped(eta):
-    return np.exp(np.minimum(eta, _ETA_MAX))
-
-
-GAUSSIAN = Family("gaussian", "identity", lambda e: e, lambda m: m,
-                  lambda m: np.ones_like(m), _gaussian_dev)
-BINOMIAL = Family("binomial", "logit", expit, _logit,
-                  lambda m: m * (1.0 - m), _binomial_dev)
-POISSON = Family("poisson", "log", _exp_capped, lambda m: np.log(np.maximum(m, 1e-300)),
-                 lambda m: m, _poisson_dev)
-
+GAUSSIAN, BINOMIAL, POISSON = Gaussian(), Binomial(), Poisson()
 FAMILIES = {f.name: f for f in (GAUSSIAN, BINOMIAL, POISSON)}
 
 
-def get_family(name: str) -> Family:
+def get_family(family) -> Family:
+    """The family object for a name (any case) or a family object."""
+    if isinstance(family, Family):
+        return family
     try:
-        return FAMILIES[str(name).lower()]
+        return FAMILIES[str(family).lower()]
     except KeyError:
-        raise ValueError(
-            f"unknown family {name!r}: use one of {', '.join(FAMILIES)}") from None
+        raise InputError(f"unknown family {family!r}: use one of {', '.join(FAMILIES)}") from None
 
 
-def null_intercept(family: Family, y, w, offset) -> float:
-    """Intercept of the intercept-only model (with offset), by Newton steps.
-
-    Without an offset this is the link of the weighted mean; with one it is
-    solved exactly (a one-parameter GLM).
-    """
-    ybar = float(np.dot(w, y) / w.sum())
-    if family.name == "gaussian":
-        return ybar - float(np.dot(w, offset) / w.sum())
-    if family.name == "binomial":
-        b0 = float(_logit(np.array([ybar]))[0])
-    else:
-        b0 = float(np.log(max(ybar, 1e-300)))
-    if not np.any(offset):
-        return b0
-    b0 -= float(np.dot(w, offset) / w.sum())
-    for _ in range(100):
-        mu = family.inverse_link(b0 + offset)
-        grad = float(np.dot(w, y - mu))
-        hess = float(np.dot(w, family.variance(mu)))
-        step = grad / max(hess, 1e-300)
-        b0 += step
-        if abs(step) < 1e-12 * (1 + abs(b0)):
-            break
-    return b0
+def null_intercept(family, y, w, offset) -> float:
+    """Intercept of the intercept-only model (see :meth:`Family.null_intercept`)."""
+    return get_family(family).null_intercept(y, w, offset)

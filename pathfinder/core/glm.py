@@ -20,7 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.linalg import LinAlgError, cho_factor, cho_solve
 
-from .families import get_family, null_intercept
+from .families import get_family
 
 
 @dataclass(frozen=True, eq=False)
@@ -49,7 +49,7 @@ def fit_glm(X, y, family="gaussian", *, offset=None, weights=None, ridge=0.0, to
     w = np.ones(n) if weights is None else np.asarray(weights, dtype=np.float64) * (n / np.sum(weights))
     off = np.zeros(n) if offset is None else np.asarray(offset, dtype=np.float64)
     if k == 0:
-        b0 = null_intercept(fam, y, w, off)
+        b0 = fam.null_intercept(y, w, off)
         dev, *_ = fam.evaluate(y, b0 + off, w)
         return GlmFit(b0, np.zeros(0), dev, 0, True)
     mean = w @ X / n
@@ -62,7 +62,7 @@ def fit_glm(X, y, family="gaussian", *, offset=None, weights=None, ridge=0.0, to
     penalty[0] = 0.0
 
     beta = np.zeros(k + 1)
-    beta[0] = null_intercept(fam, y, w, off)
+    beta[0] = fam.null_intercept(y, w, off)
     eta = A @ beta + off
     dev, W, resid, _ = fam.evaluate(y, eta, w)
     objective = dev / (2 * n) + 0.5 * ridge * beta[1:] @ beta[1:]
@@ -75,12 +75,12 @@ def fit_glm(X, y, family="gaussian", *, offset=None, weights=None, ridge=0.0, to
             eta_new = A @ new + off
             dev_new, W_new, resid_new, _ = fam.evaluate(y, eta_new, w)
             objective_new = dev_new / (2 * n) + 0.5 * ridge * new[1:] @ new[1:]
-            if objective_new <= objective * (1 + 1e-12) + 1e-300 or fam.name == "gaussian":
+            if objective_new <= objective * (1 + 1e-12) + 1e-300 or fam.least_squares:
                 break
             new = 0.5 * (new + beta)
         change = abs(objective - objective_new) / (abs(objective_new) + 0.1)
         beta, eta, dev, W, resid, objective = new, eta_new, dev_new, W_new, resid_new, objective_new
-        if fam.name == "gaussian" or change < tol:
+        if fam.least_squares or change < tol:
             converged = True
             break
     coef = beta[1:] / sd

@@ -219,6 +219,8 @@ def cd_naive(X, W, r, beta, b0, ws, xv, l1, l2, fit_intercept, tol, max_sweeps, 
 
 
 # ---- family arithmetic in one pass over the rows -----------------------------
+
+BINOMIAL_ROWS = 1   # families.BINOMIAL_CODE (kernels import nothing; a test keeps them equal)
 # Each fills the IRLS working weights W = w V(mu) (V floored), the working
 # residuals (y - mu) / V(mu) and the means, and returns the weighted deviance
 # sum_i w_i d_i, computed stably from the linear predictor.
@@ -258,29 +260,30 @@ def _poisson_row(yi, wi, e, eta_max):
 
 
 @njit(cache=True, inline="always")
-def mean_at(e, binomial, bound):
+def mean_at(e, code, bound):
     """The mean at linear predictor ``e``, as the ``*_row`` functions give it."""
-    if binomial:
+    if code == BINOMIAL_ROWS:
         t = np.exp(-abs(e))
         return 1.0 / (1.0 + t) if e >= 0 else t / (1.0 + t)
     return np.exp(e if e < bound else bound)
 
 
 @njit(cache=True, inline="always")
-def _family_row(yi, wi, e, binomial, bound):
-    """The row function of the family: ``bound`` is the variance floor
+def _family_row(yi, wi, e, code, bound):
+    """The row function of the family whose code is ``code`` (see
+    :mod:`pathfinder.core.families`): ``bound`` is the variance floor
     (binomial) or the largest linear predictor (Poisson)."""
-    if binomial:
+    if code == BINOMIAL_ROWS:
         return _binomial_row(yi, wi, e, bound)
     return _poisson_row(yi, wi, e, bound)
 
 
 @njit(cache=True)
-def glm_evaluate(y, eta, w, binomial, bound, W, resid, mu):
+def glm_evaluate(y, eta, w, code, bound, W, resid, mu):
     """Binomial (logit) or Poisson (log) rows: one exp and at most one log each."""
     total = 0.0
     for i in range(y.shape[0]):
-        d, m, v = _family_row(y[i], w[i], eta[i], binomial, bound)
+        d, m, v = _family_row(y[i], w[i], eta[i], code, bound)
         total += d
         mu[i] = m
         W[i] = w[i] * v
@@ -375,7 +378,7 @@ def _gather(buf, X, rows, used, start, m):
 
 
 @njit(cache=True, nogil=True)
-def glm_pass(X, rows, used, center, coef, b0, offset, y, w, active, gcols, binomial, bound,
+def glm_pass(X, rows, used, center, coef, b0, offset, y, w, active, gcols, code, bound,
              with_deviance, lo, hi, eta, grad, anchor, track):
     """Rows ``lo:hi``: linear predictor from scratch, family arithmetic, gradient.
 
@@ -423,10 +426,10 @@ def glm_pass(X, rows, used, center, coef, b0, offset, y, w, active, gcols, binom
             r = start + i
             wr = w[r] if w.shape[0] else 1.0
             if with_deviance:
-                d, mean, v = _family_row(y[r], wr, e[i], binomial, bound)
+                d, mean, v = _family_row(y[r], wr, e[i], code, bound)
                 total += d
             else:
-                mean = mean_at(e[i], binomial, bound)
+                mean = mean_at(e[i], code, bound)
             score[i] = wr * (y[r] - mean)
             s0 += score[i]
             if track == 1:
@@ -494,11 +497,11 @@ def column_spread(X, rows, j, mean, w):
 
 
 @njit(cache=True, nogil=True)
-def glm_deviance(y, w, eta, binomial, bound, lo, hi):
+def glm_deviance(y, w, eta, code, bound, lo, hi):
     """Weighted deviance ``sum w_i d_i`` of rows ``lo:hi`` at linear predictor ``eta``."""
     total = 0.0
     for r in range(lo, hi):
-        d, mean, v = _family_row(y[r], w[r], eta[r], binomial, bound)
+        d, mean, v = _family_row(y[r], w[r], eta[r], code, bound)
         total += d
     return 2.0 * total
 

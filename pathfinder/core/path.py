@@ -48,7 +48,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from ..errors import FitWarning
+from ..errors import FitWarning, InputError
 from .families import get_family
 from .solvers import (GramSolver, NaiveSolver, NewtonGramSolver, blas_threads, column_scales,
                       standardised_copy, weighted_mean)
@@ -149,7 +149,7 @@ class PathResult:
         if kind == "link":
             return eta
         if kind != "response":
-            raise ValueError("kind must be 'link' or 'response'")
+            raise InputError("kind must be 'link' or 'response'")
         return get_family(self.family).inverse_link(eta)
 
 
@@ -164,10 +164,180 @@ def _as_matrix(X, names=None):
 def _check_vector(v, n, what):
     v = np.asarray(v, dtype=float).ravel()
     if v.shape[0] != n:
-        raise ValueError(f"{what} has {v.shape[0]} values but X has {n} rows")
+        raise InputError(f"{what} has {v.shape[0]} values but X has {n} rows; "
+                         "pass one value per row")
     if not np.all(np.isfinite(v)):
-        raise ValueError(f"{what} contains missing or infinite values")
+        raise InputError(f"{what} contains missing or infinite values; drop or fill those rows")
     return v
+
+
+@dataclass(frozen=True, eq=False)
+class PathData:
+    """The checked inputs of one path: rows chosen, weights rescaled to sum to n."""
+
+    X: np.ndarray             # all rows of X, as given (never copied whole)
+    y: np.ndarray
+    offset: np.ndarray
+    w: np.ndarray
+    term_weights: np.ndarray
+    rows: np.ndarray | None   # the rows fitted (sorted), or None for all
+    names: tuple
+
+    @property
+    def n(self) -> int:
+        return self.y.shape[0]
+
+    @property
+    def p(self) -> int:
+        return self.X.shape[1]
+
+
+def check_inputs(X, y, family, *, term_weights=None, offset=None, weights=None, rows=None,
+                 names=None) -> PathData:
+    """Check X, y, offset, weights and term weights once, at the core's boundary."""
+    if names is None and isinstance(X, pd.DataFrame):
+        names = tuple(str(c) for c in X.columns)
+    if isinstance(X, pd.DataFrame):
+        X = X.to_numpy(dtype=float)
+    X = np.asarray(X)
+    if X.ndim != 2:
+        raise InputError("X must be two-dimensional (rows = sites, columns = predictors)")
+    if not np.issubdtype(X.dtype, np.number):
+        X = X.astype(float)
+    n_all, p = X.shape
+    names = tuple(f"x{j}" for j in range(p)) if names is None else tuple(str(c) for c in names)
+    if len(names) != p:
+        raise InputError(f"{len(names)} names for {p} columns of X; give one name per column")
+    y = _check_vector(y, n_all, "y")
+    offset = np.zeros(n_all) if offset is None else _check_vector(offset, n_all, "offset")
+    w = np.ones(n_all) if weights is None else _check_vector(weights, n_all, "weights")
+    if rows is not None:
+        # in increasing order: X is then read front to back (the fit does not
+        # depend on the order of its rows)
+        rows = np.sort(np.asarray(rows, dtype=np.int64), kind="stable")
+        y, offset, w = y[rows], offset[rows], w[rows]
+    n = y.shape[0]
+    if np.any(w < 0) or w.sum() <= 0:
+        raise InputError("weights must be non-negative and not all zero")
+    w = w * (n / w.sum())
+    v = np.ones(p) if term_weights is None else _check_vector(term_weights, p, "term_weights")
+    if np.any(v < 0):
+        raise InputError("term_weights must be non-negative (0 keeps a term in every model)")
+    family.check_response(y)
+    return PathData(X, y, offset, w, v, rows, names)
+
+
+def make_solver(data: PathData, family, standardize, max_sweeps, cross_products=None):
+    """The solver for these data: ``(solver, mean, scale, constant)``.
+
+    Gram-matrix coordinate descent for least squares with n > p; Newton steps
+    on a sampled Gram matrix for long binomial and Poisson tables; IRLS with
+    coordinate descent otherwise (see :mod:`pathfinder.core.solvers`).
+    """
+    X, y, w, offset, rows, n, p = data.X, data.y, data.w, data.offset, data.rows, data.n, data.p
+    use_gram = family.least_squares and n > p and p <= GRAM_MAX_TERMS
+    long_table = (not family.least_squares and n >= LONG_TABLE_ROWS
+                  and n >= LONG_TABLE_RATIO * p and p <= GRAM_MAX_TERMS)
+    mean = weighted_mean(X, w, rows)
+    if not np.all(np.isfinite(mean)):   # a NaN or infinity anywhere in the rows used spreads here
+        raise InputError("X contains missing or infinite values; drop or fill those rows")
+    if use_gram:
+        solver, scale, constant = GramSolver.from_data(X, y, w, offset, mean, standardize, 1.0,
+                                                       max_sweeps, rows, cross_products)
+        return solver, mean, scale, constant
+    threads = blas_threads() if n * p >= 2**22 else 1
+    # a subset of rows is gathered into a copy (faster) unless the copy would be big
+    in_place = rows is None or n * p * 8 > SUBSET_COPY_BYTES
+    if long_table and in_place and _readable_in_place(X):
+        scale, constant, squares = column_scales(X, mean, w, standardize, threads, rows)
+        solver = NewtonGramSolver(X, mean, scale, squares, y, w, offset, family, 1.0, max_sweeps,
+                                  threads=threads, rows=rows)
+        return solver, mean, scale, constant
+    Xs, scale, constant, squares = standardised_copy(X, mean, w, standardize, rows, threads)
+    if long_table:
+        solver = NewtonGramSolver(Xs, np.zeros(p), np.ones(p), squares, y, w, offset, family,
+                                  1.0, max_sweeps, threads=threads)
+    else:
+        solver = NaiveSolver(Xs, y, w, offset, family, 1.0, max_sweeps)
+    return solver, mean, scale, constant
+
+
+def largest_penalty(grad, v, mix, penalised) -> float:
+    """The smallest penalty at which every penalised coefficient is zero, exactly.
+
+    From the gradient at the model of the intercept and the always-kept terms:
+    ``max_j |g_j| / (mix v_j)``; for (near-)ridge mixes the lasso-like mix
+    ``MIX_FLOOR`` anchors it, since a ridge penalty never zeroes a term.
+    """
+    return float(np.max(np.abs(grad[penalised]) / (max(mix, MIX_FLOOR) * v[penalised])))
+
+
+def penalty_grid(lam_max, mix, penalties, n_penalties, penalty_ratio, n, p):
+    """``(grid, automatic, lam_zero)``: the penalties to fit in decreasing order.
+
+    ``lam_zero`` is the penalty from which every penalised coefficient is
+    zero for this mix (infinite for pure ridge).
+    """
+    lam_zero = lam_max if mix >= MIX_FLOOR else (lam_max * MIX_FLOOR / mix if mix > 0 else np.inf)
+    if penalties is not None:
+        grid = np.sort(np.asarray(penalties, dtype=float).ravel())[::-1]
+        if grid.size == 0 or np.any(grid < 0) or not np.all(np.isfinite(grid)):
+            raise InputError("penalties must be finite and non-negative")
+        return grid, False, lam_zero
+    ratio = penalty_ratio if penalty_ratio is not None else (1e-4 if n > p else 1e-2)
+    if not 0 < ratio < 1:
+        raise InputError("penalty_ratio must lie strictly between 0 and 1")
+    if lam_max <= 0:
+        raise InputError("no predictor is related to the response at all (every gradient is 0)")
+    return lam_max * np.logspace(0, np.log10(ratio), int(n_penalties)), True, lam_zero
+
+
+def strong_set(grad, v, mix, lam, lam_prev, usable):
+    """Terms the sequential strong rule keeps for ``lam`` (Tibshirani et al. 2012)."""
+    return usable & (np.abs(grad) >= mix * v * (2 * lam - lam_prev))
+
+
+def kkt_violators(grad, l1, usable, working):
+    """Terms outside the working set whose gradient breaks the KKT conditions."""
+    return usable & ~working & (np.abs(grad) > l1 * (1 + 1e-9))
+
+
+def solve_at(solver, l1, l2, working, usable):
+    """Fit one penalty: solve on the working set, check KKT, add violators, repeat.
+
+    Returns ``(gradient, sweeps, refits, converged)``; ``working`` grows in place.
+    """
+    iters, refits, converged = 0, 0, True
+    while True:
+        ws = np.flatnonzero(working).astype(np.int64)
+        sweeps, ok = solver.solve(l1, l2, ws)
+        iters += sweeps
+        converged &= ok
+        solver.refresh()
+        grad = solver.gradient(limit=l1).copy()
+        violators = kkt_violators(grad, l1, usable, working)
+        if not violators.any():
+            break
+        working |= violators
+        refits += 1
+    return grad, iters, refits, converged
+
+
+def stop_here(family, dev_explained, k, automatic, lam, last_index):
+    """``(reason, message)`` when the path should stop after step ``k``, else ``(None, None)``.
+
+    On any grid: deviance explained above ``SATURATED``; on the automatic grid
+    only, after ``MIN_STEPS_BEFORE_STOP`` penalties, a rise in deviance
+    explained below ``SMALL_CHANGE`` of itself.
+    """
+    now = dev_explained[-1]
+    if now > SATURATED:
+        return "deviance explained above 0.999", (family.saturation_message(lam)
+                                                  if k < last_index else None)
+    if automatic and k + 1 >= MIN_STEPS_BEFORE_STOP:
+        if now - dev_explained[-2] < SMALL_CHANGE * abs(now):
+            return "deviance explained stopped changing", None
+    return None, None
 
 
 def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=100,
@@ -183,7 +353,8 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
         order, float32 or float64) is read as it is, standardised on the fly:
         no copy, and float32 data stay float32 (sums are taken in float64).
     y : response (0/1 or proportions for binomial, counts for Poisson).
-    family : "gaussian", "binomial" or "poisson".
+    family : "gaussian", "binomial" or "poisson" (or a family object of
+        :mod:`pathfinder.core.families`).
     mix : 1 is the lasso, 0 ridge, in between the elastic net (Zou & Hastie 2005).
     penalties : a grid of penalties to use instead of the automatic one
         (sorted into decreasing order).
@@ -210,75 +381,24 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
         ``tol^2 * null deviance / n``.
     """
     if not 0.0 <= float(mix) <= 1.0:
-        raise ValueError(f"mix must lie between 0 (ridge) and 1 (lasso), got {mix}")
+        raise InputError(f"mix must lie between 0 (ridge) and 1 (lasso), got {mix}")
     mix = float(mix)
     fam = get_family(family)
-    if names is None and isinstance(X, pd.DataFrame):
-        names = tuple(str(c) for c in X.columns)
-    if isinstance(X, pd.DataFrame):
-        X = X.to_numpy(dtype=float)
-    X = np.asarray(X)
-    if X.ndim != 2:
-        raise ValueError("X must be two-dimensional (rows = sites, columns = predictors)")
-    if not np.issubdtype(X.dtype, np.number):
-        X = X.astype(float)
-    n_all, p = X.shape
-    names = tuple(f"x{j}" for j in range(p)) if names is None else tuple(str(c) for c in names)
-    if len(names) != p:
-        raise ValueError(f"{len(names)} names for {p} columns of X")
-    y = _check_vector(y, n_all, "y")
-    offset = np.zeros(n_all) if offset is None else _check_vector(offset, n_all, "offset")
-    w = np.ones(n_all) if weights is None else _check_vector(weights, n_all, "weights")
-    if rows is not None:
-        # in increasing order: X is then read front to back (the fit does not
-        # depend on the order of its rows)
-        rows = np.sort(np.asarray(rows, dtype=np.int64), kind="stable")
-        y, offset, w = y[rows], offset[rows], w[rows]
-    n = y.shape[0]
-    if np.any(w < 0) or w.sum() <= 0:
-        raise ValueError("weights must be non-negative and not all zero")
-    w = w * (n / w.sum())
-    v = np.ones(p) if term_weights is None else _check_vector(term_weights, p, "term_weights")
-    if np.any(v < 0):
-        raise ValueError("term_weights must be non-negative")
-    _check_response(fam.name, y)
-
-    use_gram = fam.name == "gaussian" and n > p and p <= GRAM_MAX_TERMS
-    long_table = (fam.name != "gaussian" and n >= LONG_TABLE_ROWS and n >= LONG_TABLE_RATIO * p
-                  and p <= GRAM_MAX_TERMS)
-    mean = weighted_mean(X, w, rows)
-    if not np.all(np.isfinite(mean)):   # a NaN or infinity anywhere in the rows used spreads here
-        raise ValueError("X contains missing or infinite values")
-    if use_gram:
-        solver, scale, constant = GramSolver.from_data(X, y, w, offset, mean, standardize, 1.0,
-                                                       max_sweeps, rows, cross_products)
-    else:
-        threads = blas_threads() if n * p >= 2**22 else 1
-        # a subset of rows is gathered into a copy (faster) unless the copy would be big
-        in_place = rows is None or n * p * 8 > SUBSET_COPY_BYTES
-        if long_table and in_place and _readable_in_place(X):
-            scale, constant, squares = column_scales(X, mean, w, standardize, threads, rows)
-            solver = NewtonGramSolver(X, mean, scale, squares, y, w, offset, fam, 1.0, max_sweeps,
-                                      threads=threads, rows=rows)
-        else:
-            Xs, scale, constant, squares = standardised_copy(X, mean, w, standardize, rows, threads)
-            if long_table:
-                solver = NewtonGramSolver(Xs, np.zeros(p), np.ones(p), squares, y, w, offset, fam,
-                                          1.0, max_sweeps, threads=threads)
-            else:
-                solver = NaiveSolver(Xs, y, w, offset, fam, 1.0, max_sweeps)
+    data = check_inputs(X, y, fam, term_weights=term_weights, offset=offset, weights=weights,
+                        rows=rows, names=names)
+    n, p, v = data.n, data.p, data.term_weights
+    solver, mean, scale, constant = make_solver(data, fam, standardize, max_sweeps, cross_products)
     usable = ~constant
     penalised = usable & (v > 0)
     if not penalised.any():
-        raise ValueError("no penalised term with any spread: nothing for the penalty to choose")
+        raise InputError("no penalised term with any spread: nothing for the penalty to choose")
     null_dev = solver.null_deviance()
     if null_dev <= 0:
-        raise ValueError("the response has no variation: there is nothing to explain")
+        raise InputError("the response has no variation: there is nothing to explain")
     # Converged when no coefficient moved by more than tol (in SDs of the
     # working response): the largest weighted squared change is below tol^2
     # times the null deviance per observation.
-    tol_abs = tol * tol * null_dev / n
-    solver.tol = tol_abs
+    solver.tol = tol * tol * null_dev / n
     solver.loose_tol = 1e-8 * null_dev / n
 
     issues = []
@@ -289,25 +409,11 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
         if not ok:
             issues.append("the model with only the always-kept terms did not converge")
     grad = solver.gradient().copy()
+    lam_max = largest_penalty(grad, v, mix, penalised)
+    grid, automatic, lam_zero = penalty_grid(lam_max, mix, penalties, n_penalties, penalty_ratio,
+                                             n, p)
 
-    lam_max = float(np.max(np.abs(grad[penalised]) / (max(mix, MIX_FLOOR) * v[penalised])))
-    lam_zero = lam_max if mix >= MIX_FLOOR else (lam_max * MIX_FLOOR / mix if mix > 0 else np.inf)
-    if penalties is None:
-        ratio = penalty_ratio if penalty_ratio is not None else (1e-4 if n > p else 1e-2)
-        if not 0 < ratio < 1:
-            raise ValueError("penalty_ratio must lie strictly between 0 and 1")
-        if lam_max <= 0:
-            raise ValueError("no predictor is related to the response at all (every gradient is 0)")
-        grid = lam_max * np.logspace(0, np.log10(ratio), int(n_penalties))
-        automatic = True
-    else:
-        grid = np.sort(np.asarray(penalties, dtype=float).ravel())[::-1]
-        if grid.size == 0 or np.any(grid < 0) or not np.all(np.isfinite(grid)):
-            raise ValueError("penalties must be finite and non-negative")
-        automatic = False
-
-    K = grid.size
-    out = {k: [] for k in ("b0", "beta", "dev", "iters", "kkt", "refits")}
+    out = {k: [] for k in ("b0", "beta", "dev", "iters", "kkt", "refits", "explained")}
     ever_active = np.zeros(p, dtype=bool)
     ever_active[unpenalised] = True
     lam_prev = max(lam_max, grid[0])
@@ -316,23 +422,13 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     for k, lam in enumerate(grid):
         l1 = lam * mix * v
         l2 = lam * (1 - mix) * v
-        strong = usable & (np.abs(grad) >= mix * v * (2 * lam - lam_prev))
-        ws_mask = ever_active | strong
-        iters, refits = 0, 0
-        while lam < lam_zero:  # from lam_zero up the answer is known: no penalised term
-            ws = np.flatnonzero(ws_mask).astype(np.int64)
-            sweeps, ok = solver.solve(l1, l2, ws)
-            iters += sweeps
-            if not ok and (not unconverged or unconverged[-1] != k):
-                unconverged.append(k)
-            if hasattr(solver, "refresh"):
-                solver.refresh()
-            grad = solver.gradient(limit=l1).copy()
-            violators = usable & ~ws_mask & (np.abs(grad) > l1 * (1 + 1e-9))
-            if not violators.any():
-                break
-            ws_mask |= violators
-            refits += 1
+        working = ever_active | strong_set(grad, v, mix, lam, lam_prev, usable)
+        if lam < lam_zero:   # from lam_zero up the answer is known: no penalised term
+            grad, iters, refits, ok = solve_at(solver, l1, l2, working, usable)
+        else:
+            iters, refits, ok = 0, 0, True
+        if not ok:
+            unconverged.append(k)
         beta = solver.beta.copy()
         ever_active |= beta != 0
         out["b0"].append(solver.intercept)
@@ -341,18 +437,14 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
         out["iters"].append(iters)
         out["kkt"].append(_kkt_violation(grad, beta, l1, l2, usable))
         out["refits"].append(refits)
+        out["explained"].append(1 - out["dev"][-1] / null_dev)
         lam_prev = lam
-        ratio_now = 1 - out["dev"][-1] / null_dev
-        if ratio_now > SATURATED:
-            stop_reason = "deviance explained above 0.999"
-            if k + 1 < K:
-                issues.append(_saturation_message(fam.name, lam))
+        reason, message = stop_here(fam, out["explained"], k, automatic, lam, grid.size - 1)
+        if message:
+            issues.append(message)
+        if reason:
+            stop_reason = reason
             break
-        if automatic and k + 1 >= MIN_STEPS_BEFORE_STOP:
-            ratio_before = 1 - out["dev"][-2] / null_dev
-            if ratio_now - ratio_before < SMALL_CHANGE * abs(ratio_now):
-                stop_reason = "deviance explained stopped changing"
-                break
 
     if unconverged:
         issues.append(_unconverged_message(unconverged, grid))
@@ -364,7 +456,7 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     for message in issues:
         warnings.warn(message, FitWarning, stacklevel=2)
     return PathResult(
-        family=fam.name, mix=mix, names=names, penalties=grid[: len(deviance)].copy(),
+        family=fam.name, mix=mix, names=data.names, penalties=grid[: len(deviance)].copy(),
         intercept=intercept, coef=coef, intercept_std=intercept_std, coef_std=coef_std,
         deviance=deviance, null_deviance=float(null_dev),
         deviance_ratio=1 - deviance / null_dev, n_terms=(coef_std != 0).sum(axis=1),
@@ -392,25 +484,9 @@ def _kkt_violation(grad, beta, l1, l2, usable):
     return float(np.max(viol[usable], initial=0.0))
 
 
-def _check_response(family, y):
-    if family == "binomial" and (np.any(y < 0) or np.any(y > 1)):
-        raise ValueError("a binomial response must lie between 0 and 1 (0/1 for presence/absence)")
-    if family == "poisson" and np.any(y < 0):
-        raise ValueError("a Poisson response must be non-negative counts")
-
-
 def _unconverged_message(steps, grid):
     where = (f"penalty {grid[steps[0]]:.4g} (step {steps[0]})" if len(steps) == 1 else
              f"{len(steps)} penalties between {grid[steps[-1]]:.4g} and {grid[steps[0]]:.4g} "
              f"(steps {steps[0]} to {steps[-1]})")
     return (f"the fit at {where} stopped at the iteration cap before converging; those "
             "coefficients are approximate")
-
-
-def _saturation_message(family, lam):
-    if family == "binomial":
-        return (f"the path stopped at penalty {lam:.4g}: the model separates presences from "
-                "absences almost perfectly (deviance explained > 0.999); smaller penalties "
-                "would give unbounded coefficients")
-    return (f"the path stopped at penalty {lam:.4g}: the model fits the data almost "
-            "perfectly (deviance explained > 0.999)")

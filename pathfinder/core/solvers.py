@@ -24,10 +24,8 @@ import numpy as np
 
 from concurrent.futures import ThreadPoolExecutor
 
-from scipy.special import expit
-
 from .arrays import empty_aligned
-from .families import Family, null_intercept, row_bound
+from .families import Family
 from .kernels import (PASS_ROWS, cd_gram, cd_naive, centre_column, column_spread, divide_column,
                       glm_deviance, glm_pass, weighted_sample)
 
@@ -192,7 +190,43 @@ def penalty_value(beta, l1, l2):
     return float(np.sum(l1 * np.abs(beta)) + 0.5 * np.sum(l2 * beta * beta))
 
 
-class GramSolver:
+class Solver:
+    """What the path loop asks of every solver (see :mod:`pathfinder.core.path`).
+
+    A solver holds the standardised coefficients ``beta`` and the intercept of
+    the current fit; ``tol`` (and ``loose_tol``, the first inner tolerance of
+    a Newton loop) are set by the path. The loop calls :meth:`solve` on a
+    working set, then :meth:`refresh`, then :meth:`gradient` for the KKT
+    check, and reads :meth:`deviance` once a penalty is done.
+    """
+
+    beta: np.ndarray
+    tol: float = 0.0
+    loose_tol: float = 0.0
+
+    @property
+    def intercept(self) -> float:
+        raise NotImplementedError
+
+    def solve(self, l1, l2, ws) -> tuple[int, bool]:
+        """Minimise the penalised objective over the terms ``ws``: (sweeps, converged)."""
+        raise NotImplementedError
+
+    def refresh(self) -> None:
+        """Drop accumulated round-off after a solve (nothing to do for most solvers)."""
+
+    def gradient(self, limit=None) -> np.ndarray:
+        """Gradient of the log-likelihood part for every term (exact where it may exceed ``limit``)."""
+        raise NotImplementedError
+
+    def deviance(self) -> float:
+        raise NotImplementedError
+
+    def null_deviance(self) -> float:
+        raise NotImplementedError
+
+
+class GramSolver(Solver):
     """Gaussian, n > p: covariance updates on ``G = Xs'WXs / n``."""
 
     def __init__(self, G, c, yy, ybar, n, tol, max_sweeps):
@@ -239,7 +273,7 @@ class GramSolver:
         return self.n * self.yy
 
 
-class NaiveSolver:
+class NaiveSolver(Solver):
     """Any family: IRLS with naive coordinate descent on a standardised copy."""
 
     def __init__(self, Xs, y, w, offset, family: Family, tol, max_sweeps, max_newton=100):
@@ -250,7 +284,7 @@ class NaiveSolver:
         self.family = family
         self.n, p = Xs.shape
         self.beta = np.zeros(p)
-        self.b0 = null_intercept(family, y, w, offset)
+        self.b0 = family.null_intercept(y, w, offset)
         self._set_eta(self.b0 + offset)
         self._null_deviance = self.dev
         self.xv = np.zeros(p)
@@ -279,7 +313,7 @@ class NaiveSolver:
         with the inner loop held to ``tol`` itself. A step that raises the
         penalised objective is halved back towards the previous point.
         """
-        gaussian = self.family.name == "gaussian"
+        gaussian = self.family.least_squares
         total_sweeps = 0
         objective = self.dev / (2 * self.n) + penalty_value(self.beta, l1, l2)
         inner_tol = self.tol if gaussian else max(self.tol, self.loose_tol)
@@ -342,7 +376,7 @@ def blas_threads() -> int:
     return max(1, min(counts)) if counts else 1
 
 
-class NewtonGramSolver:
+class NewtonGramSolver(Solver):
     """Binomial and Poisson, n >> p: Newton steps on the working set's weighted Gram matrix.
 
     The penalised Newton step minimises the quadratic model
@@ -386,8 +420,9 @@ class NewtonGramSolver:
         self._offset = offset if np.any(offset) else none
         self._w = none if np.all(w == 1.0) else w
         self.n, self.p = y.shape[0], X.shape[1]
-        self.binomial = family.name == "binomial"
-        self.bound = row_bound(family.name)
+        self.family = family
+        self.code = family.code
+        self.bound = family.row_bound
         self.tol = tol
         self.max_sweeps = max_sweeps
         self.max_newton = max_newton
@@ -395,7 +430,7 @@ class NewtonGramSolver:
         self.loose_tol = 0.0
         self.step_halvings = self.hessian_builds = self.secant_updates = self.passes = 0
         self.beta = np.zeros(self.p)
-        self.b0 = null_intercept(family, y, w, offset)
+        self.b0 = family.null_intercept(y, w, offset)
         self.eta = np.empty(self.n)
         self.grad = np.zeros(self.p + 1)           # last slot: the intercept
         self.grad_known = np.zeros(self.p + 1, dtype=bool)
@@ -452,7 +487,7 @@ class NewtonGramSolver:
             devs[c], drifts[c] = glm_pass(
                 self.X, self.rows, used, self.center, coef, self.b0, self._offset, self.y,
                 self._w, active, gcols,
-                self.binomial, self.bound, with_deviance, lo, hi, self.eta, parts[c],
+                self.code, self.bound, with_deviance, lo, hi, self.eta, parts[c],
                 self.anchor, track)
 
         self._chunks(work)
@@ -508,7 +543,7 @@ class NewtonGramSolver:
             devs = np.zeros(-(-self.n // CHUNK_ROWS))
 
             def work(c, lo, hi):
-                devs[c] = glm_deviance(self.y, self.w, self.eta, self.binomial, self.bound, lo, hi)
+                devs[c] = glm_deviance(self.y, self.w, self.eta, self.code, self.bound, lo, hi)
 
             self._chunks(work)
             self.dev = float(devs.sum())
@@ -523,13 +558,7 @@ class NewtonGramSolver:
     # ---- the Gram matrix ----------------------------------------------------
     def _working_weights(self, rows):
         """IRLS weights ``w V(mu)`` at ``rows``, the variance floored as in :meth:`Family.evaluate`."""
-        eta = self.eta[rows]
-        if self.binomial:
-            mu = expit(eta)
-            v = np.maximum(mu * (1 - mu), self.bound)
-        else:
-            v = np.maximum(np.exp(np.minimum(eta, self.bound)), 1e-10)
-        return self.w[rows] * v
+        return self.family.working_weights(self.eta[rows], self.w[rows])
 
     def _gram(self, cols, fresh):
         """Make ``H`` hold ``X'WX / n`` (sample estimate) for ``cols`` (intercept = p).

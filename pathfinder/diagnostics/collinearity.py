@@ -23,9 +23,9 @@ import numpy as np
 from scipy.cluster.hierarchy import fcluster, leaves_list, linkage
 from scipy.spatial.distance import squareform
 
+from ..defaults import CORRELATION_THRESHOLD
 from ..errors import InputError
 
-DEFAULT_THRESHOLD = 0.7
 # Eigenvalues of the correlation matrix below this fraction of the largest are
 # treated as exact zeros: a variance inflation factor above about 1e10 is an
 # exact linear dependence blurred by rounding, and is reported as infinite.
@@ -104,7 +104,7 @@ def _correlations(X, weights):
     return R, constant
 
 
-def correlation_clusters(R, threshold: float = DEFAULT_THRESHOLD) -> np.ndarray:
+def correlation_clusters(R, threshold: float = CORRELATION_THRESHOLD) -> np.ndarray:
     """A cluster number for every term: families whose members all move together.
 
     Complete-linkage clustering of the distance 1 - |r|, cut at
@@ -121,7 +121,7 @@ def correlation_clusters(R, threshold: float = DEFAULT_THRESHOLD) -> np.ndarray:
     if not 0.0 < threshold <= 1.0:
         raise InputError(
             f"the correlation threshold must lie above 0 and at most 1, got {threshold:g}; "
-            f"{DEFAULT_THRESHOLD} is a common working value")
+            f"{CORRELATION_THRESHOLD} is a common working value")
     p = R.shape[0]
     if p == 1:
         return np.ones(1, dtype=np.int64)

@@ -5,6 +5,8 @@ from __future__ import annotations
 import platform
 from importlib import metadata
 
+from ..core.families import get_family
+
 PACKAGES = ("pathfinder", "numpy", "scipy", "pandas", "scikit-learn", "numba", "pyarrow")
 
 
@@ -22,6 +24,7 @@ def run_record(study, command: str) -> dict:
     """A JSON-ready dictionary describing one run."""
     survey, info = study.survey, study.table_info
     dropped_rows = survey.n_read - survey.n
+    family = get_family(survey.family)
     record = {
         "command": command,
         "options": study.options.to_dict(),
@@ -35,6 +38,8 @@ def run_record(study, command: str) -> dict:
                  "dropped_for_missing_value_in": dict(survey.dropped_missing)},
         "response": {"column": survey.response_name, "family": survey.family,
                      "family_reason": survey.family_reason,
+                     "kind": family.kind, "presence_absence": family.binary,
+                     "prediction": family.mean_words("{}"),
                      "labels": list(survey.response_labels) if survey.response_labels else None},
         "predictors": {"kept": list(survey.predictors), "categorical": list(survey.categorical),
                        "dropped": [list(d) for d in survey.dropped_predictors],

@@ -25,6 +25,7 @@ import altair as alt
 import numpy as np
 import pandas as pd
 
+from ..defaults import CORRELATION_THRESHOLD
 from ..errors import InputError
 from . import theme
 
@@ -947,7 +948,8 @@ def correlation_heatmap(correlations: pd.DataFrame, order=None, *, max_terms: in
     frame["term_a"], frame["term_b"] = frame["term_a"].astype(str), frame["term_b"].astype(str)
     names = list(dict.fromkeys(list(frame["term_a"]) + list(frame["term_b"])))
     subtitle = (
-        "Blue: rise and fall in opposite directions; ochre: together. |r| > 0.7 is a common warning sign."
+        "Blue: rise and fall in opposite directions; ochre: together. "
+        f"|r| > {CORRELATION_THRESHOLD} is a common warning sign."
     )
     if len(names) > max_terms:
         strongest = pd.concat(
@@ -976,7 +978,7 @@ def correlation_heatmap(correlations: pd.DataFrame, order=None, *, max_terms: in
     row = np.where(swap, frame["term_b"], frame["term_a"])
     col = np.where(swap, frame["term_a"], frame["term_b"])
     cells = pd.DataFrame({"row": row, "col": col, "r": frame["r"].astype(float)})
-    cells["strong"] = np.where(cells["r"].abs() > 0.7, cells["r"].map(lambda v: f"{v:.1f}"), "")
+    cells["strong"] = np.where(cells["r"].abs() > CORRELATION_THRESHOLD, cells["r"].map(lambda v: f"{v:.1f}"), "")
     size = 18 if len(order) <= 30 else (13 if len(order) <= 60 else 10)
     data = inline(cells, digits=3)
     chart = (

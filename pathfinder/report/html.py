@@ -31,6 +31,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from ..defaults import CORRELATION_THRESHOLD
 from ..errors import InputError
 from . import charts, theme, vendor
 
@@ -212,7 +213,7 @@ def section_data(tables, record) -> Section:
     if sites is not None and "observed" in sites.columns:
         observed = pd.to_numeric(sites["observed"], errors="coerce").dropna()
         if len(observed):
-            if response.get("family") == "binomial":
+            if response.get("presence_absence"):
                 summary = (
                     f"{int((observed > 0).sum())} presences and {int((observed == 0).sum())} absences "
                     f"(prevalence {observed.mean():.1%})."
@@ -304,12 +305,13 @@ def section_correlated(tables, record) -> Section:
     else:
         s.parts.append(_figure("correlations", charts.correlation_heatmap, corr))
         if {"term_a", "term_b", "r"} <= set(corr.columns):
-            strong = corr[corr["r"].abs() > 0.7].copy()
+            strong = corr[corr["r"].abs() > CORRELATION_THRESHOLD].copy()
             strong = strong.reindex(strong["r"].abs().sort_values(ascending=False).index).head(30)
             if len(strong):
                 s.parts.append(
                     _para(
-                        f"{int((corr['r'].abs() > 0.7).sum())} pairs have |r| above 0.7, a common "
+                        f"{int((corr['r'].abs() > CORRELATION_THRESHOLD).sum())} pairs have |r| above "
+                        f"{CORRELATION_THRESHOLD}, a common "
                         "working threshold (Dormann et al. 2013); the strongest:"
                     )
                 )
@@ -325,7 +327,8 @@ def section_correlated(tables, record) -> Section:
                 )
             else:
                 s.parts.append(
-                    _para("No pair of terms has |r| above 0.7 (Dormann et al. 2013's working threshold).")
+                    _para(f"No pair of terms has |r| above {CORRELATION_THRESHOLD} "
+                          "(Dormann et al. 2013's working threshold).")
                 )
     groups = _clusters(tables)
     if groups:
@@ -591,11 +594,10 @@ def section_compare(tables, record) -> Section:
 
 def _response_label(record) -> str:
     column = _get(record, "response", "column") if record else None
-    family = _get(record, "response", "family") if record else None
+    template = (_get(record, "response", "prediction") if record else None) or "{}"
     if not column:
         return "fitted value"
-    words = charts.readable(column)
-    return {"binomial": f"chance of {words}", "poisson": f"expected {words}"}.get(family, words)
+    return template.replace("{}", charts.readable(column))
 
 
 def section_chosen(tables, record) -> Section:

@@ -21,7 +21,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from common import ar_design, grid_for, print_cases, side_by_side, standardise  # noqa: E402
 
-from pathfinder.choose.cv import Problem, cross_validate  # noqa: E402
+from pathfinder.choose.cv import cross_validate  # noqa: E402
+from pathfinder.choose.problem import Problem  # noqa: E402
 from pathfinder.choose.folds import random_folds, stratified_folds  # noqa: E402
 
 

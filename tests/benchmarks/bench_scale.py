@@ -73,7 +73,7 @@ def case_million():
 def case_cluster():
     from dask.distributed import Client, LocalCluster, get_task_stream
 
-    from pathfinder.choose.cv import Problem
+    from pathfinder.choose.problem import Problem
     from pathfinder.choose.stability import stability_selection
     from pathfinder.parallel import Backend, Session
 

@@ -32,7 +32,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 from common import ar_design, side_by_side  # noqa: E402
 
 from pathfinder import fit_path  # noqa: E402
-from pathfinder.choose.cv import Problem  # noqa: E402
+from pathfinder.choose.problem import Problem  # noqa: E402
 from pathfinder.choose.stability import stability_selection  # noqa: E402
 from pathfinder.parallel import Backend, run_tasks  # noqa: E402
 

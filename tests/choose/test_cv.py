@@ -11,7 +11,8 @@ from hypothesis import given
 from hypothesis import strategies as st
 from sklearn.linear_model import LassoCV
 
-from pathfinder.choose.cv import Problem, cross_validate, pick_steps
+from pathfinder.choose.cv import cross_validate, pick_steps
+from pathfinder.choose.problem import Problem
 from pathfinder.choose.folds import random_folds, stratified_folds
 
 from ..core.helpers import correlated_design, make_response

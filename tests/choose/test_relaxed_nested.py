@@ -4,7 +4,8 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 
-from pathfinder.choose.cv import Problem, cross_validate
+from pathfinder.choose.cv import cross_validate
+from pathfinder.choose.problem import Problem
 from pathfinder.choose.folds import random_folds, stratified_folds
 from pathfinder.choose.metrics import mean_deviance
 from pathfinder.choose.nested import FoldPlan, choices, comparison_table, mean_jaccard, nested_cv

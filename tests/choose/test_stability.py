@@ -14,7 +14,7 @@ import pytest
 from hypothesis import example, given
 from hypothesis import strategies as st
 
-from pathfinder.choose.cv import Problem
+from pathfinder.choose.problem import Problem
 from pathfinder.choose.stability import (
     bootstrap_samples, complementary_pairs, default_q, pmb_bound, stability_selection,
     threshold_for_pfer)

@@ -14,7 +14,7 @@ import pytest
 
 from pathfinder import fit_path
 from pathfinder.core import path as path_module
-from pathfinder.choose.cv import Problem
+from pathfinder.choose.problem import Problem
 
 N, P = 200_000, 50
 

@@ -4,7 +4,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from pathfinder.choose.cv import Problem, cross_validate
+from pathfinder.choose.cv import cross_validate
+from pathfinder.choose.problem import Problem
 from pathfinder.choose.folds import random_folds, spatial_block_folds
 from pathfinder.outputs.write import write_study
 from pathfinder.parallel import Backend
@@ -152,7 +153,7 @@ def test_long_binomial_tables_get_a_smaller_default_subset_search(monkeypatch):
     # 8 predictors (c0-c5, x, y): 1 + 8 + 28 = 37 models reach size 2, 93 reach size 3
     monkeypatch.setattr(selectors, "SUBSET_ROW_MODELS", 160 * 37)
     assert selectors.default_subset_budget("binomial", 160) == 37
-    assert selectors.default_subset_budget("gaussian", 160) == selectors.DEFAULT_SUBSET_MODELS
+    assert selectors.default_subset_budget("gaussian", 160) == selectors.SUBSET_MODELS
     quick = dict(response="present", folds=3, mixes=(1.0,), n_penalties=15, nested=False,
                  stability=False, seed=2)
     study = explore(_table(), StudyOptions(**quick))
