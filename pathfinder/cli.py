@@ -143,9 +143,24 @@ def _add_output_options(p, default_out=None):
     p.add_argument("--figures", choices=["png", "svg"],
                    help="also write every chart of the report to DIR/figures at print resolution")
     p.add_argument("--overwrite", action="store_true", help="replace a non-empty output folder")
+    _add_terminal_options(p, json_help="print a machine-readable summary on standard output")
+
+
+def _add_terminal_options(p, json_help="print a machine-readable summary"):
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
-    p.add_argument("--json", action="store_true", help="print a machine-readable summary on standard output")
+    if json_help:
+        p.add_argument("--json", action="store_true", help=json_help)
     p.add_argument("--debug", action="store_true", help="show the full traceback of an internal fault")
+
+
+def _command(commands, name, run, *, summary, description, examples):
+    """One subcommand, with its help line, description and examples."""
+    epilog = ("examples:\n" if len(examples) > 1 else "example:\n") + "\n".join(
+        f"  pathfinder {name} {line}" for line in examples)
+    command = commands.add_parser(name, help=summary, description=description, epilog=epilog,
+                                  formatter_class=argparse.RawDescriptionHelpFormatter)
+    command.set_defaults(run=run)
+    return command
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -155,63 +170,52 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"pathfinder {__version__}")
     commands = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
-    explore = commands.add_parser(
-        "explore", help="analyse a survey table", formatter_class=argparse.RawDescriptionHelpFormatter,
+    explore = _command(
+        commands, "explore", run_explore, summary="analyse a survey table",
         description="Fit lasso, elastic-net or ridge paths to a survey table and write the tables.",
-        epilog="examples:\n"
-               "  pathfinder explore sites.csv --response present --out results\n"
-               "  pathfinder explore counts.csv --response n_birds --effort minutes "
-               "--exclude site_id --mix 1,0.5 --out results")
+        examples=["sites.csv --response present --out results",
+                  "counts.csv --response n_birds --effort minutes --exclude site_id --mix 1,0.5 "
+                  "--out results"])
     _add_table_options(explore)
     _add_model_options(explore)
     _add_choosing_options(explore)
     _add_output_options(explore)
-    explore.set_defaults(run=run_explore)
 
-    demo = commands.add_parser(
-        "demo", help="run the analysis on the bundled invented survey",
+    demo = _command(
+        commands, "demo", run_demo, summary="run the analysis on the bundled invented survey",
         description="Explore the bundled invented survey (the Carrow bell-moss).",
-        epilog="example:\n  pathfinder demo --response count --out demo-counts",
-        formatter_class=argparse.RawDescriptionHelpFormatter)
+        examples=["--response count --out demo-counts"])
     demo.add_argument("--response", choices=list(DEMO_CHOICES), default="presence",
                       help="which of the three responses to model (default presence)")
     demo.add_argument("--seed", type=int, default=defaults.SEED)
     demo.add_argument("--jobs", type=int, default=1, metavar="N", help="local worker processes")
     demo.add_argument("--quick", action="store_true", help="skip nested cross-validation (faster)")
     _add_output_options(demo, default_out=DEMO_FOLDER)
-    demo.set_defaults(run=run_demo)
 
-    screen = commands.add_parser(
-        "screen", help="check a table and show which covariates move together",
+    screen = _command(
+        commands, "screen", run_screen, summary="check a table and show which covariates move together",
         description="Fast checks before any model: missing values, ranges, correlation clusters "
                     "and variance inflation factors of every predictor.",
-        epilog="example:\n  pathfinder screen sites.csv --response present --exclude site_id --out checks",
-        formatter_class=argparse.RawDescriptionHelpFormatter)
+        examples=["sites.csv --response present --exclude site_id --out checks"])
     _add_table_options(screen)
     screen.add_argument("--threshold", type=float, default=defaults.CORRELATION_THRESHOLD, metavar="R",
                         help="|r| at which covariates count as moving together "
                              f"(default {defaults.CORRELATION_THRESHOLD})")
     screen.add_argument("--out", metavar="DIR", help="also write the tables as CSV to this folder")
     screen.add_argument("--overwrite", action="store_true", help="replace a non-empty output folder")
-    screen.add_argument("--quiet", action="store_true", help="print nothing but errors")
-    screen.add_argument("--json", action="store_true", help="print a machine-readable summary")
-    screen.add_argument("--debug", action="store_true", help="show the full traceback of an internal fault")
-    screen.set_defaults(run=run_screen)
+    _add_terminal_options(screen)
 
-    predict = commands.add_parser(
-        "predict", help="predict at new sites from a model file",
+    predict = _command(
+        commands, "predict", run_predict, summary="predict at new sites from a model file",
         description="Predict at the sites of a table with a model.json written by explore, "
                     "flagging sites outside the sampled conditions (training range and MESS).",
-        epilog="example:\n  pathfinder predict results/model.json new_sites.csv --out predictions.csv",
-        formatter_class=argparse.RawDescriptionHelpFormatter)
+        examples=["results/model.json new_sites.csv --out predictions.csv"])
     predict.add_argument("model", metavar="MODEL.json", help="the model file written by pathfinder explore")
     predict.add_argument("data", help="the table of new sites: CSV or Parquet")
     predict.add_argument("--out", metavar="FILE", help="write the predictions as CSV (default: standard output)")
     predict.add_argument("--link", action="store_true", help="add the linear predictor (column 'link')")
     predict.add_argument("--decimal", choices=[".", ","], help="decimal mark of the CSV")
-    predict.add_argument("--quiet", action="store_true", help="print nothing but errors")
-    predict.add_argument("--debug", action="store_true", help="show the full traceback of an internal fault")
-    predict.set_defaults(run=run_predict)
+    _add_terminal_options(predict, json_help=None)
     return parser
 
 

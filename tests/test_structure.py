@@ -151,3 +151,10 @@ def test_study_options_take_their_defaults_from_the_defaults_module():
     assert options.nested_pairs == defaults.NESTED_STABILITY_PAIRS
     assert options.mixes == defaults.MIXES
     assert options.seed == defaults.SEED
+
+
+def test_the_compiled_kernels_know_the_families_by_the_same_codes():
+    from pathfinder.core import kernels
+    from pathfinder.core.families import BINOMIAL
+
+    assert kernels.BINOMIAL_ROWS == BINOMIAL.code

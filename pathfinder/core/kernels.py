@@ -38,6 +38,32 @@ def _soft(u, t):
     return 0.0
 
 
+@njit(cache=True, inline="always")
+def _gram_sweep(G, grad, beta, cols, count, l1, l2, active, record):
+    """One sweep over ``cols[:count]``: returns (largest change, non-zero coordinates
+    recorded in ``active`` when ``record``)."""
+    p = G.shape[0]
+    biggest = 0.0
+    n_active = 0
+    for k in range(count):
+        j = cols[k]
+        gjj = G[j, j]
+        old = beta[j]
+        new = _soft(grad[j] + gjj * old, l1[j]) / (gjj + l2[j])
+        if new != old:
+            d = new - old
+            beta[j] = new
+            for i in range(p):
+                grad[i] -= d * G[j, i]
+            change = gjj * d * d
+            if change > biggest:
+                biggest = change
+        if record and beta[j] != 0.0:
+            active[n_active] = j
+            n_active += 1
+    return biggest, n_active
+
+
 @njit(cache=True)
 def cd_gram(G, grad, beta, ws, l1, l2, tol, max_sweeps):
     """Coordinate descent on the Gram matrix; updates ``beta`` and ``grad`` in place.
@@ -46,48 +72,17 @@ def cd_gram(G, grad, beta, ws, l1, l2, tol, max_sweeps):
     the working set) and holds it again on exit, so the caller can check the
     KKT conditions of the coordinates outside the working set for free.
     """
-    p = G.shape[0]
     sweeps = 0
     active = np.empty(ws.shape[0], dtype=np.int64)
     while sweeps < max_sweeps:
         # a full sweep over the working set
-        biggest = 0.0
-        n_active = 0
-        for k in range(ws.shape[0]):
-            j = ws[k]
-            gjj = G[j, j]
-            old = beta[j]
-            new = _soft(grad[j] + gjj * old, l1[j]) / (gjj + l2[j])
-            if new != old:
-                d = new - old
-                beta[j] = new
-                for i in range(p):
-                    grad[i] -= d * G[j, i]
-                change = gjj * d * d
-                if change > biggest:
-                    biggest = change
-            if beta[j] != 0.0:
-                active[n_active] = j
-                n_active += 1
+        biggest, n_active = _gram_sweep(G, grad, beta, ws, ws.shape[0], l1, l2, active, True)
         sweeps += 1
         if biggest < tol:
             break
         # sweeps over the non-zero coordinates only, until they settle
         while sweeps < max_sweeps:
-            biggest = 0.0
-            for k in range(n_active):
-                j = active[k]
-                gjj = G[j, j]
-                old = beta[j]
-                new = _soft(grad[j] + gjj * old, l1[j]) / (gjj + l2[j])
-                if new != old:
-                    d = new - old
-                    beta[j] = new
-                    for i in range(p):
-                        grad[i] -= d * G[j, i]
-                    change = gjj * d * d
-                    if change > biggest:
-                        biggest = change
+            biggest, _ = _gram_sweep(G, grad, beta, active, n_active, l1, l2, active, False)
             sweeps += 1
             if biggest < tol:
                 break
@@ -161,6 +156,32 @@ def _update_intercept(W, r, sum_w, inv_n):
     return d, sum_w * inv_n * d * d
 
 
+@njit(cache=True, inline="always")
+def _naive_sweep(X, W, r, beta, b0, cols, count, xv, l1, l2, fit_intercept, sum_w, inv_n,
+                 fresh, active, record):
+    """One sweep over ``cols[:count]`` and the intercept: (b0, largest change, non-zero
+    coordinates recorded in ``active`` when ``record``)."""
+    biggest = 0.0
+    n_active = 0
+    for k in range(count):
+        j = cols[k]
+        if fresh:
+            change = _update_naive_fresh(X, W, r, beta, j, xv, l1[j], l2[j], inv_n)
+        else:
+            change = _update_naive(X, W, r, beta, j, xv[j], l1[j], l2[j], inv_n)
+        if change > biggest:
+            biggest = change
+        if record and beta[j] != 0.0:
+            active[n_active] = j
+            n_active += 1
+    if fit_intercept:
+        d, change = _update_intercept(W, r, sum_w, inv_n)
+        b0 += d
+        if change > biggest:
+            biggest = change
+    return b0, biggest, n_active
+
+
 @njit(cache=True)
 def cd_naive(X, W, r, beta, b0, ws, xv, l1, l2, fit_intercept, tol, max_sweeps, fresh_norms=False):
     """Coordinate descent with residual updates; updates ``beta`` and ``r`` in place.
@@ -179,39 +200,15 @@ def cd_naive(X, W, r, beta, b0, ws, xv, l1, l2, fit_intercept, tol, max_sweeps, 
     sweeps = 0
     active = np.empty(ws.shape[0], dtype=np.int64)
     while sweeps < max_sweeps:
-        biggest = 0.0
-        n_active = 0
-        for k in range(ws.shape[0]):
-            j = ws[k]
-            if fresh_norms and sweeps == 0:
-                change = _update_naive_fresh(X, W, r, beta, j, xv, l1[j], l2[j], inv_n)
-            else:
-                change = _update_naive(X, W, r, beta, j, xv[j], l1[j], l2[j], inv_n)
-            if change > biggest:
-                biggest = change
-            if beta[j] != 0.0:
-                active[n_active] = j
-                n_active += 1
-        if fit_intercept:
-            d, change = _update_intercept(W, r, sum_w, inv_n)
-            b0 += d
-            if change > biggest:
-                biggest = change
+        b0, biggest, n_active = _naive_sweep(X, W, r, beta, b0, ws, ws.shape[0], xv, l1, l2,
+                                             fit_intercept, sum_w, inv_n,
+                                             fresh_norms and sweeps == 0, active, True)
         sweeps += 1
         if biggest < tol:
             break
         while sweeps < max_sweeps:
-            biggest = 0.0
-            for k in range(n_active):
-                j = active[k]
-                change = _update_naive(X, W, r, beta, j, xv[j], l1[j], l2[j], inv_n)
-                if change > biggest:
-                    biggest = change
-            if fit_intercept:
-                d, change = _update_intercept(W, r, sum_w, inv_n)
-                b0 += d
-                if change > biggest:
-                    biggest = change
+            b0, biggest, _ = _naive_sweep(X, W, r, beta, b0, active, n_active, xv, l1, l2,
+                                          fit_intercept, sum_w, inv_n, False, active, False)
             sweeps += 1
             if biggest < tol:
                 break

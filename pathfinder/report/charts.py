@@ -875,6 +875,20 @@ def _model_name(terms: str, rank: int, limit: int = 70) -> str:
     return f"{rank}. {text}"
 
 
+def _share_bars(data, field, colour, title, number_format, y, tooltip):
+    """Horizontal bars of a share between 0 and 1, one per term."""
+    return (
+        alt.Chart(data)
+        .mark_bar(color=colour, height={"band": 0.7})
+        .encode(
+            x=alt.X(f"{field}:Q", scale=alt.Scale(domain=[0, 1]),
+                    axis=alt.Axis(title=title, format=number_format)),
+            y=y,
+            tooltip=tooltip,
+        )
+    )
+
+
 def importance_bars(importance: pd.DataFrame, *, max_terms: int = 60):
     """Relative importance of each term: the summed Akaike weight of the models holding it."""
     require(importance, ["term", "importance"], "importance")
@@ -885,19 +899,9 @@ def importance_bars(importance: pd.DataFrame, *, max_terms: int = 60):
         frame = frame.head(max_terms)
     data = inline(frame[["term", "importance"]])
     y = alt.Y("term:N", sort=frame["term"].astype(str).tolist(), axis=alt.Axis(title=None))
-    bars = (
-        alt.Chart(data)
-        .mark_bar(color=theme.HEATHER, height={"band": 0.72})
-        .encode(
-            x=alt.X(
-                "importance:Q",
-                scale=alt.Scale(domain=[0, 1]),
-                axis=alt.Axis(title="summed Akaike weight of the models that hold the term", format=".1f"),
-            ),
-            y=y,
-            tooltip=[alt.Tooltip("term:N"), alt.Tooltip("importance:Q", format=".3f")],
-        )
-    )
+    bars = _share_bars(data, "importance", theme.HEATHER,
+                       "summed Akaike weight of the models that hold the term", ".1f", y,
+                       [alt.Tooltip("term:N"), alt.Tooltip("importance:Q", format=".3f")])
     return bars.properties(
         width=WIDE - 120,
         height=max(100, ROW * len(frame)),
@@ -1137,20 +1141,9 @@ def chosen_coefficients(chosen: pd.DataFrame):
     left = alt.layer(zero, stems, dots).properties(width=360, height=height)
     if not has_freq:
         return left.properties(title=alt.Title(title, subtitle="Coefficients per SD of each term."))
-    right = (
-        alt.Chart(data)
-        .mark_bar(color=theme.HAREBELL, height={"band": 0.7})
-        .encode(
-            x=alt.X(
-                "selection_frequency:Q",
-                scale=alt.Scale(domain=[0, 1]),
-                axis=alt.Axis(title="chosen in (share of subsamples)", format=".0%"),
-            ),
-            y=alt.Y("term:N", sort=frame["term"].astype(str).tolist(), axis=None),
-            tooltip=tooltip,
-        )
-        .properties(width=170, height=height)
-    )
+    right = _share_bars(data, "selection_frequency", theme.HAREBELL, "chosen in (share of subsamples)",
+                        ".0%", alt.Y("term:N", sort=frame["term"].astype(str).tolist(), axis=None),
+                        tooltip).properties(width=170, height=height)
     return alt.hconcat(
         left,
         right,

@@ -145,6 +145,17 @@ def _absent(name: str) -> str:
     return f'<p class="absent">{_esc(name)}: {NOT_IN_RUN}.</p>'
 
 
+def _opening_chart(section, tables, name, draw, what):
+    """A section that opens with the chart of table ``name``, or says the table is not in
+    this run: ``(section, table or None)``."""
+    frame = tables.get(name)
+    if frame is None:
+        section.parts.append(_absent(f"{what} ({name}.csv)"))
+    else:
+        section.parts.append(_figure(name, draw, frame))
+    return section, frame
+
+
 def _para(text: str, cls: str = "") -> str:
     return f'<p{f" class={chr(34)}{cls}{chr(34)}" if cls else ""}>{text}</p>'
 
@@ -293,17 +304,12 @@ def _clusters(tables) -> dict:
 
 
 def section_correlated(tables, record) -> Section:
-    s = Section(
-        "correlated",
-        "2 Correlated predictors",
-        "Predictors that rise and fall together can stand in for each other; "
-        "read any choice among them with care.",
-    )
-    corr = tables.get("correlations")
-    if corr is None:
-        s.parts.append(_absent("Correlations between terms (correlations.csv)"))
-    else:
-        s.parts.append(_figure("correlations", charts.correlation_heatmap, corr))
+    s, corr = _opening_chart(
+        Section("correlated", "2 Correlated predictors",
+                "Predictors that rise and fall together can stand in for each other; "
+                "read any choice among them with care."),
+        tables, "correlations", charts.correlation_heatmap, "Correlations between terms")
+    if corr is not None:
         if {"term_a", "term_b", "r"} <= set(corr.columns):
             strong = corr[corr["r"].abs() > CORRELATION_THRESHOLD].copy()
             strong = strong.reindex(strong["r"].abs().sort_values(ascending=False).index).head(30)
@@ -500,17 +506,12 @@ def section_stability(tables, record) -> Section:
 
 
 def section_compare(tables, record) -> Section:
-    s = Section(
-        "compare",
-        "6 Shrinkage against subsets",
-        "All methods judged on the same outer folds, with the choice redone inside each fold; "
-        "and the classic subset search by information criteria beside them.",
-    )
-    comparison = tables.get("comparison")
-    if comparison is None:
-        s.parts.append(_absent("The nested comparison of methods (comparison.csv)"))
-    else:
-        s.parts.append(_figure("comparison", charts.comparison_chart, comparison))
+    s, comparison = _opening_chart(
+        Section("compare", "6 Shrinkage against subsets",
+                "All methods judged on the same outer folds, with the choice redone inside each "
+                "fold; and the classic subset search by information criteria beside them."),
+        tables, "comparison", charts.comparison_chart, "The nested comparison of methods")
+    if comparison is not None:
         need = {"method", "rule", "n_terms", "outer_mean", "outer_se"}
         if need <= set(comparison.columns):
             rows = []
