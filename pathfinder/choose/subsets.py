@@ -8,29 +8,31 @@ judged on the same outer folds (:func:`subset_choice`).
 
 Searches
 --------
-* :func:`best_subsets` fits every subset of up to ``max_size`` predictors
-  (``2^p`` models when ``max_size = p``) and keeps, for each size, the best
-  ``keep_per_size`` of them by log-likelihood. Within a size every criterion
-  (AIC, AICc, BIC, adjusted R^2, Cp) ranks models as the log-likelihood does,
-  because the number of parameters is the same; so the best model by any
-  criterion is always among those kept.
+* :func:`best_subsets` keeps, for each size, the best ``keep_per_size``
+  models by log-likelihood, and says how each size was found (``found_by``:
+  exhaustive, proved or searched; :mod:`pathfinder.choose.subset_search`).
+  Within a size every criterion (AIC, AICc, BIC, adjusted R^2, Cp) ranks
+  models as the log-likelihood does, because the number of parameters is the
+  same; so the best model by any criterion is always among those kept.
 
-  - Gaussian: the subsets are visited depth first and each residual sum of
-    squares follows from its parent's by one elimination step on the centred
-    weighted cross-product matrix (the arithmetic of the sweep operator used
-    by leaps and bounds, Furnival & Wilson 1974, Technometrics 16:499-511,
-    without the bounds: the whole tree is cheap enough to visit). The
-    number of rows enters only once, when the cross-products are formed.
-  - Binomial and Poisson: each subset is refitted by Newton's method from its
-    parent's coefficients. Every subset is fitted; no bound is used to skip
-    any, so the table and the count of models are exact. (A valid bound
-    exists, since the maximised log-likelihood never falls when a term is
-    added, but a subset is only cheap to skip after fitting its largest
-    descendant, which costs more than it saves here.)
-  - The search is cut into blocks of the visiting order and run through
-    ``run(fn, tasks, shared)``; the figures of each subset are the same
-    whichever block or worker computed them.
+  - Gaussian: every size 0..p by leaps and bounds (Furnival & Wilson 1974,
+    Technometrics 16:499-511) on the centred weighted cross-product matrix:
+    the residual sum of squares of a set bounds that of all its subsets, so
+    whole branches of the tree of subsets are skipped once they cannot beat
+    the models kept (:mod:`pathfinder.core.kernels_leaps`). The number of
+    rows enters only once, when the cross-products are formed.
+  - Binomial and Poisson: every subset of the smallest sizes is refitted by
+    Newton's method from its parent's coefficients while that is affordable
+    (:mod:`pathfinder.core.kernels_subsets`); larger sizes are searched by
+    splicing (Zhu, Wen, Zhang, Wang & Wang 2020, PNAS 117:33117-33123)
+    started from forward stepwise and the neighbouring sizes, never worse
+    than forward stepwise at the same size, up to the size where AIC, AICc
+    and BIC have all risen for several sizes running.
+  - Long searches are cut into tasks run through ``run(fn, tasks, shared)``;
+    the kept models are the same whichever way they are cut or run.
 
+* :func:`forward_path` is forward stepwise at every size, to compare the
+  methods size by size.
 * :func:`stepwise` adds (forward), removes (backward) or does either (both)
   one term at a time, each time taking the change that lowers the criterion
   most, and stops when no change lowers it. It works for any number of
@@ -88,6 +90,7 @@ from ..core import kernels_subsets as kernels
 from ..core.families import get_family, null_intercept
 from ..core.glm import fit_glm
 from ..errors import InputError
+from . import subset_search as search
 from .criteria import _log_likelihood
 from .cv import Problem
 
@@ -96,17 +99,16 @@ GAUSSIAN_CRITERIA = ("adjusted_r2", "cp")
 DIRECTIONS = ("forward", "backward", "both")
 METHODS = ("best", "forward", "backward", "both")
 
-ALIAS_TOL = 1e-10            # residual variance share below which a term is aliased
-NEWTON_TOL = 1e-8            # Newton decrement relative to |log-likelihood| + 1 (then one more step)
-NEWTON_MAX_ITER = 50
+ALIAS_TOL = search.ALIAS_TOL
+NEWTON_TOL = search.NEWTON_TOL
+NEWTON_MAX_ITER = search.NEWTON_MAX_ITER
 GAUSSIAN_BLOCK = 1 << 21     # subsets per task: about 0.1 s of least-squares search
 GLM_BLOCK = 1 << 12          # subsets per task: about a second of Newton fits
 MAX_TASKS = 256
 STORED_VECTORS = 1 << 22     # GLM search: keep per-depth working vectors up to 2 x 32 MB
 CONFIDENCE = 0.95
 SATURATED = 0.999            # deviance explained at which a binomial fit counts as separated
-_FAMILY_CODES = {"gaussian": kernels.GAUSSIAN, "binomial": kernels.BINOMIAL,
-                 "poisson": kernels.POISSON}
+_FAMILY_CODES = search.FAMILY_CODES
 
 
 # ---- the rows searched, prepared once --------------------------------------------
@@ -315,34 +317,45 @@ def run_block(data: SearchData, task: SearchTask) -> BlockResult:
                        int(visited), int(not_converged))
 
 
-def _merge(blocks, p, max_size, keep):
-    """The best ``keep`` subsets of each size over all blocks, in a fixed order."""
-    sizes = np.concatenate([b.sizes for b in blocks])
-    scores = np.concatenate([b.scores for b in blocks])
-    members = np.concatenate([b.members for b in blocks])
-    coef = np.concatenate([b.coef for b in blocks])
+def _merge(parts, p, max_size, keep):
+    """The best ``keep`` subsets of each size over all parts, in a fixed order.
+
+    ``parts`` are ``(sizes, scores, members, coef)`` tuples; a subset found by
+    more than one part counts once, with its best score.
+    """
+    width = max(max_size, 1)
+    sizes = np.concatenate([np.asarray(q[0], dtype=np.int64) for q in parts])
+    scores = np.concatenate([np.asarray(q[1], dtype=float) for q in parts])
+    members = np.concatenate([_pad(q[2], width, -1) for q in parts])[:, :max_size]
+    coef = np.concatenate([_pad(q[3], max_size + 1, 0.0) for q in parts])
     # Best first: larger score, then the earlier subset in lexicographic order.
     keys = [members[:, t] for t in range(members.shape[1] - 1, -1, -1)] + [-scores, sizes]
     order = np.lexsort(keys)
-    chosen = []
-    for s in range(max_size + 1):
-        mine = order[sizes[order] == s]
-        chosen.append(mine[:min(keep, math.comb(p, s))])
-    chosen = np.concatenate(chosen)
+    chosen, seen = [], set()
+    count = np.zeros(max_size + 1, dtype=np.int64)
+    for i in order:
+        s = int(sizes[i])
+        key = (s, tuple(members[i, :s]))
+        if s > max_size or key in seen or count[s] >= min(keep, math.comb(p, s)):
+            continue
+        seen.add(key)
+        count[s] += 1
+        chosen.append(i)
+    chosen = np.array(chosen, dtype=np.int64)
     return sizes[chosen], members[chosen], coef[chosen]
 
 
-def _too_many(p, max_size, total, max_models):
-    what = (f"an exhaustive search over {p} predictors means 2^{p} = {total:,} models"
-            if max_size >= p else
-            f"a search over all subsets of up to {max_size} of {p} predictors means {total:,} models")
-    return InputError(f"{what}, more than the limit of {max_models:,} (max_models); use stepwise "
-                      "selection, lower the largest subset size, raise max_models, or screen the "
-                      "predictors first")
+def _pad(a, width, value):
+    a = np.asarray(a)
+    out = np.full((a.shape[0], width), value, dtype=a.dtype if a.size else type(value))
+    k = min(width, a.shape[1]) if a.ndim == 2 else 0
+    if k:
+        out[:, :k] = a[:, :k]
+    return out
 
 
 def search_tasks(p, max_size, family, keep_per_size):
-    """The blocks a search is cut into (a fixed rule: the result never depends on it)."""
+    """The blocks an exhaustive search is cut into (a fixed rule: the result never depends on it)."""
     total = count_subsets(p, max_size)
     block = GAUSSIAN_BLOCK if family == "gaussian" else GLM_BLOCK
     n_tasks = min(MAX_TASKS, max(1, -(-total // block)))
@@ -362,32 +375,16 @@ def _size_limit(data: SearchData) -> int:
     return max(0, min(data.p, data.n - 2))
 
 
-def best_subsets(problem: Problem, *, max_size=None, rows=None, keep_per_size=10,
-                 max_models=2_000_000, count_variance=False, run=None,
-                 progress=None) -> "SubsetSearch":
-    """Fit every subset of up to ``max_size`` predictors; keep the best of each size.
+def _log_constant(data: SearchData) -> float:
+    """Log-likelihood less the kernels' objective (Poisson: -sum w log y!; binomial 0/1: 0)."""
+    if data.family == "poisson":
+        return -float(data.w @ gammaln(data.y + 1.0))
+    return 0.0
 
-    ``rows`` restricts the search to some rows (positions or a mask), as in a
-    cross-validation fold. ``keep_per_size`` models of each size (all of them
-    when a size has fewer) go to the table, ranked by log-likelihood.
-    ``max_models`` guards against searches that would take hours: a larger
-    search is refused with an :class:`InputError` that says how many models
-    it would fit. ``run(fn, tasks, shared)`` carries out the blocks of the
-    search (default: in this process); ``progress(done)`` is told the number
-    of models fitted so far after each block (once, at the end, when ``run``
-    is given, whose own progress covers the blocks).
-    """
-    data = prepare(problem, rows)
-    p = data.p
-    requested = p if max_size is None else _check_int(max_size, "the largest subset size", 0)
-    max_size = min(requested, _size_limit(data))
-    keep = _check_int(keep_per_size, "keep_per_size", 1)
-    max_models = _check_int(max_models, "max_models", 1)
-    total = count_subsets(p, max_size)
-    if total > max_models:
-        raise _too_many(p, max_size, total, max_models)
 
-    tasks = search_tasks(p, max_size, data.family, keep)
+def _exhaustive(data: SearchData, size, keep, run, progress):
+    """Every subset of up to ``size`` terms (the existing depth-first kernels)."""
+    tasks = search_tasks(data.p, size, data.family, keep)
     if run is None:
         blocks, done = [], 0
         for task in tasks:
@@ -397,39 +394,274 @@ def best_subsets(problem: Problem, *, max_size=None, rows=None, keep_per_size=10
                 progress(done)
     else:
         blocks = run(run_block, tasks, data)
-        if progress is not None:
-            progress(sum(b.n_models for b in blocks))
     n_models = sum(b.n_models for b in blocks)
-    if n_models != total:
-        raise RuntimeError(f"the subset search visited {n_models} models instead of {total}")
-    sizes, members, coef_std = _merge(blocks, p, max_size, keep)
-    not_converged = sum(b.not_converged for b in blocks)
+    if n_models != count_subsets(data.p, size):
+        raise RuntimeError(f"the subset search visited {n_models} models instead of "
+                           f"{count_subsets(data.p, size)}")
+    part = (np.concatenate([b.sizes for b in blocks]), np.concatenate([b.scores for b in blocks]),
+            np.concatenate([b.members for b in blocks]), np.concatenate([b.coef for b in blocks]))
+    return part, sum(b.not_converged for b in blocks)
 
+
+def _affordable_size(data: SearchData, top, budget):
+    """Largest size whose exhaustive search (every smaller size too) fits the fit budget."""
+    size = -1
+    while size < top:
+        fits = count_subsets(data.p, size + 1)
+        if fits > budget or fits * data.y.shape[0] > search.EXHAUSTIVE_ROW_FITS:
+            break
+        size += 1
+    return size
+
+
+def _likelihood_search(data: SearchData, requested, keep, budget, count_variance, run, progress):
+    """Binomial and Poisson: exhaustive small sizes, splicing beyond (see subset_search)."""
+    limit = _size_limit(data)
+    constant = _log_constant(data)
+    penalty = search.criterion_penalties(data, limit, count_variance)
+    common = dict(tol=NEWTON_TOL, max_iter=NEWTON_MAX_ITER, alias_tol=ALIAS_TOL,
+                  stored_limit=STORED_VECTORS)
+    everything = _affordable_size(data, limit, budget) == limit
+    if requested is None and not everything:
+        forward = search.forward_steps(data, limit, window=search.RISING_SIZES,
+                                       count_variance=count_variance, constant=constant, **common)
+    else:   # a fixed range, or every size when all of them can be fitted one by one
+        forward = search.forward_steps(data, limit if requested is None else min(requested, limit),
+                                       **common)
+        requested = forward.max_size
+    top = forward.max_size
+    exact = _affordable_size(data, top, budget)
+    parts, not_converged, visited = [], forward.not_converged, np.zeros(limit + 1, dtype=np.int64)
+    visited[0] += 1
+    for s in range(1, top + 1):
+        visited[s] += data.p - s + 2               # every candidate, and the refit of the best
+    best_exact = None
+    if exact >= 0:
+        part, bad = _exhaustive(data, exact, keep, run, progress)
+        parts.append(part)
+        not_converged += bad
+        for s in range(exact + 1):
+            visited[s] += math.comb(data.p, s)
+        mine = part[0] == exact
+        i = np.flatnonzero(mine)[np.argmax(part[1][mine])]
+        best_exact = (part[2][i, :exact].copy(), part[3][i, :exact + 1].copy(), float(part[1][i]))
+    while True:
+        searched = list(range(exact + 1, top + 1))
+        slots = search.SpliceSlots(data.p, top, keep)
+        starts = {s: [(forward.added[:s], forward.coef[s, :s + 1])] for s in searched}
+        best, fits, bad, per_size = search.splice_sizes(data, searched, starts, slots, best_exact,
+                                                        tol=NEWTON_TOL, max_iter=NEWTON_MAX_ITER,
+                                                        alias_tol=ALIAS_TOL)
+        objective = np.array([max(forward.objective[s], best[s][2]) if s in best else
+                              (forward.objective[s] if s > exact else _best_score(parts, s))
+                              for s in range(top + 1)])
+        if requested is not None or top >= limit or search.rising(objective, constant, penalty,
+                                                                  search.RISING_SIZES):
+            break
+        # a searched size beat the path late: cover more sizes
+        top = min(limit, top + search.RISING_SIZES)
+        forward = search.forward_steps(data, top, **common)
+    for s, count in per_size.items():
+        visited[s] += count
+    not_converged += bad
+    parts.append(slots.kept(searched))
+    if progress is not None:
+        progress(int(visited.sum()))
+    found_by = tuple("exhaustive" if s <= exact else "searched" for s in range(top + 1))
+    return parts, top, found_by, visited[:top + 1], not_converged, forward, exact
+
+
+def _best_score(parts, s):
+    scores = [part[1][part[0] == s] for part in parts]
+    scores = np.concatenate(scores) if scores else np.zeros(0)
+    return float(scores.max()) if scores.size else -np.inf
+
+
+def _least_squares_search(data: SearchData, requested, keep, budget, run):
+    """Gaussian: leaps and bounds over every size; splicing only where a budget stopped it."""
+    limit = _size_limit(data)
+    top = limit if requested is None else min(requested, limit)
+    sizes, scores, members, found_by, visited, done = search.least_squares_sizes(
+        data, top, keep, budget, run)
+    parts = [(sizes, scores, members, np.zeros((len(sizes), 0)))]
+    open_sizes = [s for s in range(top + 1) if found_by[s] == "searched"]
+    added, _ = search.least_squares_forward(data.gram, top, ALIAS_TOL)
+    if open_sizes:
+        slots = search.SpliceSlots(data.p, top, keep)
+        starts = {}
+        for s in open_sizes:
+            starts[s] = [(added[:s], np.zeros(s + 1))]
+            mine = sizes == s
+            if mine.any():
+                i = np.flatnonzero(mine)[np.argmax(scores[mine])]
+                starts[s].append((members[i, :s], np.zeros(s + 1)))
+        _, fits, _, per_size = search.splice_sizes(data, open_sizes, starts, slots, None,
+                                                   tol=NEWTON_TOL, max_iter=NEWTON_MAX_ITER,
+                                                   alias_tol=ALIAS_TOL)
+        for s, count in per_size.items():
+            visited[s] += count
+        k_sizes, k_scores, k_members, _ = slots.kept(open_sizes)
+        # the splicing objective is -RSS / 2; the branch and bound ranks by -RSS
+        parts.append((k_sizes, 2.0 * k_scores, k_members, np.zeros((len(k_sizes), 0))))
+    return parts, top, found_by, visited, added
+
+
+def best_subsets(problem: Problem, *, max_size=None, rows=None, keep_per_size=10, max_fits=None,
+                 max_models=None, count_variance=False, run=None,
+                 progress=None) -> "SubsetSearch":
+    """The best models of every size; each size says whether it was proved best or searched.
+
+    Gaussian: leaps and bounds proves the best ``keep_per_size`` models of
+    every size 0..p (see :mod:`pathfinder.choose.subset_search`).
+    Binomial and Poisson: every subset of the smallest sizes is fitted while
+    that is affordable, and larger sizes are searched by splicing from
+    forward stepwise and the neighbouring sizes, from 0 until AIC, AICc and
+    BIC have all risen for ``RISING_SIZES`` sizes running (or p).
+
+    ``max_size`` covers exactly the sizes 0..max_size instead. ``rows``
+    restricts the search to some rows (positions or a mask), as in a
+    cross-validation fold. ``max_fits`` (``max_models`` is the same) caps
+    the models fitted or evaluated by the exact part of the search: the
+    branch and bound (Gaussian; default ``DEFAULT_GAUSSIAN_MODELS``) or the
+    exhaustive sizes (binomial and Poisson; by default those whose fits
+    times rows stay below ``EXHAUSTIVE_ROW_FITS``); sizes the budget leaves
+    unproved are searched, and ``notes`` says so and how to lift it.
+    ``run(fn, tasks, shared)`` carries out the tasks of a long search
+    (default: in this process); ``progress(done)`` is told the number of
+    models fitted so far.
+    """
+    data = prepare(problem, rows)
+    p = data.p
+    requested = None if max_size is None else _check_int(max_size, "the largest subset size", 0)
+    keep = _check_int(keep_per_size, "keep_per_size", 1)
+    if max_fits is None:
+        max_fits = max_models
+    budget = None if max_fits is None else _check_int(max_fits, "max_fits", 1)
+    limit = _size_limit(data)
+    notes = []
+    if data.family == "gaussian":
+        parts, top, found_by, visited, added = _least_squares_search(
+            data, requested, keep, search.DEFAULT_GAUSSIAN_MODELS if budget is None else budget, run)
+        not_converged, exact = 0, top
+        forward_members = [added[:s] for s in range(top + 1)]
+        forward_coef = None
+        if progress is not None:
+            progress(int(visited.sum()))
+    else:
+        parts, top, found_by, visited, not_converged, forward, exact = _likelihood_search(
+            data, requested, keep, np.inf if budget is None else budget, count_variance, run,
+            progress)
+        forward_members = [forward.added[:s] for s in range(top + 1)]
+        forward_coef = forward.coef
+    sizes, members, coef_std = _merge(parts, p, top, keep)
     intercepts, coefs = _original_units(data, sizes, members, coef_std)
     table = _model_table(data, sizes, members, intercepts, coefs, count_variance)
     order = np.lexsort([-table["log_likelihood"].to_numpy(), table["k"].to_numpy()])
     table = table.iloc[order].reset_index(drop=True)
     table.insert(2, "rank_within_size", table.groupby("k").cumcount() + 1)
-    notes = []
-    if requested > max_size and max_size < p:
-        notes.append(f"models were limited to {max_size} terms so that each leaves at least one "
+    table["found_by"] = [found_by[k] for k in table["k"]]
+    forward_table = _forward_table(data, forward_members, forward_coef, count_variance)
+    best_ll = table.groupby("k")["log_likelihood"].max()
+    size_table = pd.DataFrame({
+        "k": np.arange(top + 1),
+        "found_by": list(found_by),
+        "models_visited": np.asarray(visited[:top + 1], dtype=np.int64),
+        "models_of_this_size": [math.comb(p, s) for s in range(top + 1)],
+        "log_likelihood": best_ll.reindex(np.arange(top + 1)).to_numpy(),
+        "forward_log_likelihood": forward_table["log_likelihood"].to_numpy()[:top + 1],
+    })
+    n_models = int(size_table["models_visited"].sum())
+    notes += _search_notes(data, requested, top, limit, found_by, exact, budget, table,
+                           not_converged, n_models)
+    columns = tuple(tuple(int(j) for j in members[i, :sizes[i]]) for i in order)
+    return SubsetSearch(table=table, coefficients=coefs[order], intercepts=intercepts[order],
+                        columns=columns,
+                        family=data.family, names=data.names, n=data.n, p=p, max_size=top,
+                        keep_per_size=keep, n_models=n_models,
+                        models_per_size=tuple(math.comb(p, s) for s in range(top + 1)),
+                        count_variance=count_variance, problem=problem,
+                        rows=None if rows is None else _as_rows(rows, problem.X.shape[0]),
+                        notes=tuple(notes), sizes=size_table, forward=forward_table,
+                        full_log_likelihood=_full_log_likelihood(data))
+
+
+def _search_notes(data, requested, top, limit, found_by, exact, budget, table, not_converged,
+                  n_models):
+    """Plain words on every limit that applied to the search, and how to lift it."""
+    notes, p = [], data.p
+    if requested is not None and requested < limit:
+        notes.append(f"only subsets of up to {top} of the {p} terms were searched (a largest size "
+                     f"was asked for); leave the largest size unset to cover every size")
+    elif top < p and limit < p:
+        notes.append(f"models were limited to {limit} terms so that each leaves at least one "
                      f"residual degree of freedom ({data.n} rows)")
+    elif top < p:
+        notes.append(f"sizes 0 to {top} of {p} were covered: AIC, AICc and BIC had all risen for "
+                     f"{search.RISING_SIZES} sizes running by then; ask for a largest size of "
+                     f"{p} to cover every size")
+    searched = [s for s in range(top + 1) if found_by[s] == "searched"]
+    if searched:
+        span = _span(searched)
+        if data.family == "gaussian":
+            limit_used = budget or search.DEFAULT_GAUSSIAN_MODELS
+            notes.append(f"the branch and bound stopped at its budget of {limit_used:,} models "
+                         f"before proving sizes {span}; those sizes were searched by splicing, "
+                         "not proved; raise max_fits to prove them")
+        else:
+            what = (f"every subset of up to {exact} terms was fitted (exhaustive); "
+                    if exact >= 0 else "")
+            lift = ("raise max_fits to fit more sizes exhaustively" if budget is not None else
+                    "subsets beyond that many fits are not compared one by one")
+            notes.append(f"{what}sizes {span} were searched by splicing from forward stepwise "
+                         f"and the neighbouring sizes: the best found, not proved best; {lift}")
+        notes.append("Akaike weights of models left out cannot be bounded closely at searched "
+                     "sizes (see weight_left_out)")
     if data.family == "binomial" and (table["deviance_explained"] >= SATURATED).any():
         notes.append("some subsets separate presences from absences almost perfectly; their "
                      "coefficients run towards infinity and the criteria favour them, so check "
                      "those terms before trusting the choice")
     if not_converged:
-        notes.append(f"{not_converged:,} of {total:,} fits did not converge (often a term that "
+        notes.append(f"{not_converged:,} of {n_models:,} fits did not converge (often a term that "
                      "separates presences from absences); their log-likelihoods are lower bounds")
-    columns = tuple(tuple(int(j) for j in members[i, :sizes[i]]) for i in order)
-    return SubsetSearch(table=table, coefficients=coefs[order], intercepts=intercepts[order],
-                        columns=columns,
-                        family=data.family, names=data.names, n=data.n, p=p, max_size=max_size,
-                        keep_per_size=keep, n_models=total,
-                        models_per_size=tuple(math.comb(p, s) for s in range(max_size + 1)),
-                        count_variance=count_variance, problem=problem,
-                        rows=None if rows is None else _as_rows(rows, problem.X.shape[0]),
-                        notes=tuple(notes))
+    return notes
+
+
+def _span(sizes):
+    return f"{sizes[0]} to {sizes[-1]}" if len(sizes) > 1 else f"{sizes[0]}"
+
+
+def _forward_table(data: SearchData, members_by_size, coef_std, count_variance) -> pd.DataFrame:
+    """Forward stepwise at every size: k, terms, log-likelihood and criteria (refitted)."""
+    top = len(members_by_size) - 1
+    sizes = np.arange(top + 1)
+    members = np.full((top + 1, max(top, 1)), -1, dtype=np.int64)
+    coef = np.zeros((top + 1, top + 1))
+    for s, m in enumerate(members_by_size):
+        order = np.argsort(m, kind="stable")
+        members[s, :s] = np.asarray(m)[order]
+        if coef_std is not None:
+            coef[s, 0] = coef_std[s, 0]
+            coef[s, 1:s + 1] = coef_std[s, 1:s + 1][order]
+    intercepts, coefs = _original_units(data, sizes, members, coef)
+    table = _model_table(data, sizes, members, intercepts, coefs, count_variance)
+    return table[["k", "terms", "log_likelihood", "aic", "aicc", "bic"]]
+
+
+def _full_log_likelihood(data: SearchData) -> float:
+    """Log-likelihood of the model with every term (the largest any subset can reach), or NaN."""
+    if data.n - 2 < data.p:
+        return float("nan")
+    cols = np.arange(data.p, dtype=np.int64)
+    if data.family == "gaussian":
+        b = _least_squares(data.gram, cols)
+        rss = max(float(data.gram[-1, -1] - b @ data.gram[cols, -1]), 0.0)
+        total = data.w.sum()
+        return -0.5 * total * (np.log(2 * np.pi * rss / total) + 1.0) if rss > 0 else np.inf
+    beta = np.zeros(data.p + 1)
+    beta[0] = data.intercept_start
+    f, _ = kernels.fit_subset(data.Xt, data.y, data.w, data.offset, _FAMILY_CODES[data.family],
+                              cols, beta, NEWTON_TOL, NEWTON_MAX_ITER, ALIAS_TOL)
+    return float(f) + _log_constant(data)
 
 
 def _original_units(data: SearchData, sizes, members, coef_std):
@@ -510,9 +742,22 @@ class SubsetSearch:
     size), sorted by size and then log-likelihood: terms (";"-joined names),
     k (number of terms), rank_within_size, n_parameters, log_likelihood,
     deviance, aic, aicc, bic, deviance_explained, and for a Gaussian response
-    adjusted_r2 and cp. Row i of ``coefficients`` (original units, zeros for
-    absent terms), ``intercepts`` and ``columns`` (the positions of the
-    model's terms among the predictors) belongs to row i of the table.
+    adjusted_r2 and cp, and found_by: how the models of that size were found
+    (exhaustive: every subset of that size compared; proved: branch and
+    bound proved them the best; searched: the best a local search found, not
+    proved). Row i of ``coefficients`` (original units, zeros for absent
+    terms), ``intercepts`` and ``columns`` (the positions of the model's
+    terms among the predictors) belongs to row i of the table.
+
+    Sizes 0..``max_size`` are covered. ``sizes`` has one row per size: k,
+    found_by, models_visited (models fitted or evaluated at that size),
+    models_of_this_size, log_likelihood (the best kept) and
+    forward_log_likelihood (forward stepwise's model of that size).
+    ``n_models`` is the total of models_visited. ``forward`` is forward
+    stepwise at every size covered (k, terms, log_likelihood, aic, aicc,
+    bic). ``full_log_likelihood`` is that of the model with every term, which
+    no subset can exceed (NaN with fewer than p + 2 rows). ``notes`` states
+    in words every limit that applied and how to lift it.
     """
 
     table: pd.DataFrame
@@ -531,6 +776,15 @@ class SubsetSearch:
     problem: Problem = field(repr=False)
     rows: np.ndarray | None = field(default=None, repr=False)
     notes: tuple = ()
+    sizes: pd.DataFrame | None = field(default=None, repr=False)
+    forward: pd.DataFrame | None = field(default=None, repr=False)
+    full_log_likelihood: float = float("nan")
+
+    @property
+    def proved_sizes(self) -> tuple:
+        """Sizes whose kept models are proved best (exhaustive or proved)."""
+        return tuple(int(k) for k, how in zip(self.sizes.k, self.sizes.found_by)
+                     if how != "searched")
 
     @property
     def best_by_size(self) -> pd.DataFrame:
@@ -565,12 +819,18 @@ class SubsetSearch:
         return akaike_table(self.table, _check_criterion(criterion, self.family, CRITERIA))
 
     def weight_left_out(self, criterion="aicc") -> float:
-        """Upper bound on the Akaike weight of the models not in the table.
+        """Upper bound on the Akaike weight of the models not in the table (all sizes 0..p).
 
-        A model left out of size s fits no better than the worst model kept of
-        that size and has the same number of parameters, so its criterion is
-        at least as large; summing that bound over the models left out gives
-        the largest share of weight they could hold.
+        At a size whose models are proved best (exhaustive or proved), a model
+        left out fits no better than the worst model kept of that size and has
+        the same number of parameters, so its criterion is at least as large.
+        At a searched size, or a size not covered, nothing is proved about the
+        models left out except that none fits better than the best proved
+        model of any larger size, nor than the model with every term
+        (``full_log_likelihood``); that gives a valid but loose bound, often
+        close to 1. Summing the bounds over the models left out gives the
+        largest share of weight they could hold. NaN when no such bound is
+        known (too few rows for the model with every term).
         """
         criterion = _check_criterion(criterion, self.family, CRITERIA)
         values = self.table[criterion].to_numpy(dtype=float)
@@ -579,12 +839,29 @@ class SubsetSearch:
             return float("nan")
         low = values[finite].min()
         listed = np.exp(-(values[finite] - low) / 2).sum()
+        how = dict(zip(self.sizes.k, self.sizes.found_by)) if self.sizes is not None else {}
+        groups = dict(tuple(self.table.groupby("k")))
+        best_ll = {int(k): float(g["log_likelihood"].max()) for k, g in groups.items()}
+        ceiling = self.full_log_likelihood
         left = 0.0
-        for s, group in self.table.groupby("k"):
-            missing = self.models_per_size[int(s)] - len(group)
-            worst = group[criterion].max()
-            if missing > 0 and np.isfinite(worst):
-                left += missing * np.exp(-(worst - low) / 2)
+        for s in range(self.p, -1, -1):
+            group = groups.get(s)
+            listed_here = 0 if group is None else len(group)
+            missing = math.comb(self.p, s) - listed_here
+            proved = how.get(s, "searched") != "searched"
+            if missing > 0:
+                if proved:
+                    bound = group[criterion].max()
+                else:
+                    if not np.isfinite(ceiling):
+                        return float("nan")
+                    k_params = _n_parameters(s, self.family, self.count_variance)
+                    bound = criteria_columns(ceiling, k_params, self.n)[criterion]
+                if np.isfinite(bound):
+                    left += missing * np.exp(-(bound - low) / 2)
+            if proved and s in best_ll:
+                # no model of a smaller size fits better than the best of this size
+                ceiling = min(ceiling, best_ll[s]) if np.isfinite(ceiling) else best_ll[s]
         return float(left / (listed + left))
 
 
@@ -729,6 +1006,30 @@ def stepwise(problem: Problem, *, direction="forward", criterion="aic", rows=Non
                              chosen)
     return StepwiseResult(pd.DataFrame(steps), tuple(data.names[j] for j in chosen), intercept, coef,
                           criterion, direction, value, stopped)
+
+
+def forward_path(problem: Problem, *, rows=None, max_size=None,
+                 count_variance=False) -> pd.DataFrame:
+    """Forward stepwise at every size 0..max_size, not only where a criterion stops it.
+
+    Each step adds the term that raises the log-likelihood most (ties: the
+    term listed first), every candidate refitted in full; the table has one
+    row per size: k, terms, log_likelihood, aic, aicc, bic. Set beside the
+    best subset of each size (``SubsetSearch.sizes``), the lasso and the
+    relaxed lasso, it lets the methods be compared size by size as in
+    Hastie, Tibshirani & Tibshirani (2020, Statistical Science 35:579-592).
+    ``max_size`` defaults to p (at most n - 2).
+    """
+    data = prepare(problem, rows)
+    limit = _size_limit(data)
+    top = limit if max_size is None else min(limit, _check_int(max_size, "the largest size", 0))
+    if data.family == "gaussian":
+        added, _ = search.least_squares_forward(data.gram, top, ALIAS_TOL)
+        return _forward_table(data, [added[:s] for s in range(top + 1)], None, count_variance)
+    steps = search.forward_steps(data, top, tol=NEWTON_TOL, max_iter=NEWTON_MAX_ITER,
+                                 alias_tol=ALIAS_TOL, stored_limit=STORED_VECTORS)
+    return _forward_table(data, [steps.added[:s] for s in range(top + 1)], steps.coef,
+                          count_variance)
 
 
 # ---- the choice inside cross-validation folds ------------------------------------

@@ -20,7 +20,7 @@ import statsmodels.api as sm
 from hypothesis import given
 from hypothesis import strategies as st
 
-from pathfinder.choose import subsets
+from pathfinder.choose import subset_search, subsets
 from pathfinder.choose.cv import Problem
 from pathfinder.choose.subsets import (akaike_table, best_subsets, count_subsets, model_average,
                                        stepwise, subset_choice, variable_importance)
@@ -204,24 +204,34 @@ def test_collinear_twin_adds_nothing():
 
 # ---- the search machinery --------------------------------------------------------
 
-def test_refusal_names_the_number_of_models():
+def test_a_search_once_refused_covers_every_size_and_a_budget_is_stated():
+    # 2^30 subsets used to be refused; branch and bound now proves every size.
     rng = np.random.default_rng(9)
     problem = Problem(rng.standard_normal((50, 30)), rng.standard_normal(50), "gaussian",
                       tuple(f"x{j}" for j in range(30)))
-    with pytest.raises(InputError, match=r"2\^30 = 1,073,741,824 models.*stepwise"):
-        best_subsets(problem)
-    with pytest.raises(InputError, match=r"up to 8 of 30 predictors means 8,656,937 models"):
-        best_subsets(problem, max_size=8)
+    search = best_subsets(problem, keep_per_size=2)
+    assert list(search.sizes.k) == list(range(31)) and search.max_size == 30
+    assert set(search.sizes.found_by) <= {"exhaustive", "proved"}
+    assert 0 < search.n_models < 2**30 and search.notes == ()
     assert count_subsets(30, 8) == sum(math.comb(30, i) for i in range(9))
-    assert len(best_subsets(problem, max_size=2).table) == 1 + 10 + 10
+    # A budget too small to prove every size is said in words, with how to lift it.
+    short = best_subsets(problem, keep_per_size=2, max_fits=200)
+    assert "searched" in set(short.sizes.found_by)
+    assert any("budget of 200 models" in note and "raise max_fits" in note for note in short.notes)
+    assert set(short.table.found_by) == set(short.sizes.found_by)
+    # A largest size asked for is stated too.
+    capped = best_subsets(problem, max_size=2)
+    assert len(capped.table) == 1 + 10 + 10
+    assert any("up to 2 of the 30 terms" in note for note in capped.notes)
 
 
 @pytest.mark.parametrize("family", ["gaussian", "binomial"])
 def test_blocks_and_workers_do_not_change_the_result(family, monkeypatch):
     problem = invented(12, family, n=120, p=9)
     whole = best_subsets(problem, max_size=6)
-    monkeypatch.setattr(subsets, "GAUSSIAN_BLOCK", 23)
-    monkeypatch.setattr(subsets, "GLM_BLOCK", 23)
+    monkeypatch.setattr(subsets, "GLM_BLOCK", 23)                # exhaustive blocks (binomial)
+    monkeypatch.setattr(subset_search, "FIRST_PASS_MODELS", 5)    # branch-and-bound parts
+    monkeypatch.setattr(subset_search, "TOP_DEPTH", 3)
     seen, calls = [], []
 
     def run(fn, tasks, shared):
@@ -230,12 +240,14 @@ def test_blocks_and_workers_do_not_change_the_result(family, monkeypatch):
 
     cut = best_subsets(problem, max_size=6, run=run, progress=seen.append)
     assert calls[0] > 10
-    assert seen == [count_subsets(9, 6)] == [cut.n_models]
-    pd.testing.assert_frame_equal(whole.table, cut.table, check_exact=True)
+    assert seen[-1] == cut.n_models
+    compared = [c for c in whole.table.columns if c != "found_by"]
+    pd.testing.assert_frame_equal(whole.table[compared], cut.table[compared], check_exact=True)
     assert np.array_equal(whole.coefficients, cut.coefficients)
-    ticks = []
-    best_subsets(problem, max_size=6, progress=ticks.append)
-    assert ticks == sorted(ticks) and ticks[-1] == count_subsets(9, 6) and len(ticks) > 10
+    if family == "binomial":
+        ticks = []
+        best_subsets(problem, max_size=6, progress=ticks.append)
+        assert ticks == sorted(ticks) and ticks[-1] == whole.n_models and len(ticks) > 10
 
 
 @pytest.mark.parametrize("family", ["binomial", "poisson"])
