@@ -203,6 +203,8 @@ def build_parser() -> argparse.ArgumentParser:
                              f"(default {defaults.CORRELATION_THRESHOLD})")
     screen.add_argument("--out", metavar="DIR", help="also write the tables as CSV to this folder")
     screen.add_argument("--overwrite", action="store_true", help="replace a non-empty output folder")
+    screen.add_argument("--na-values", type=_names, metavar="CODE,..",
+                        help="no-data codes to read as missing, such as -9999")
     _add_terminal_options(screen)
 
     predict = _command(
@@ -215,6 +217,9 @@ def build_parser() -> argparse.ArgumentParser:
     predict.add_argument("--out", metavar="FILE", help="write the predictions as CSV (default: standard output)")
     predict.add_argument("--link", action="store_true", help="add the linear predictor (column 'link')")
     predict.add_argument("--decimal", choices=[".", ","], help="decimal mark of the CSV")
+    predict.add_argument("--na-values", type=_names, metavar="CODE,..",
+                         help="no-data codes to read as missing, such as -9999")
+    predict.add_argument("--overwrite", action="store_true", help="replace an existing --out file")
     _add_terminal_options(predict, json_help=None)
     return parser
 
@@ -302,7 +307,8 @@ def run_screen(args) -> int:
         raise InputError("give the table and the response: pathfinder screen DATA --response COL")
     if args.out:
         check_target(args.out, overwrite=args.overwrite, inputs=[args.data])
-    frame, _ = read_table(Path(args.data), decimal=args.decimal, delimiter=args.delimiter)
+    frame, info = read_table(Path(args.data), decimal=args.decimal, delimiter=args.delimiter,
+                             na_values=args.na_values)
     result = screen(frame, response=args.response, threshold=args.threshold,
                     family=args.family or "auto", predictors=args.predictors,
                     exclude=list(args.exclude or ()), categorical=list(args.categorical or ()),
@@ -317,18 +323,35 @@ def run_screen(args) -> int:
         print(json.dumps({"terms": int(len(result.terms)),
                           "clusters": int(result.terms.cluster.nunique()),
                           "high_vif": result.terms.term[result.terms.vif > 10].tolist(),
+                          "notes": list(dict.fromkeys(info.notes + result.survey.notes)),
                           "warnings": list(result.survey.warnings)}))
     elif not args.quiet:
+        survey = result.survey
+        _print_notes(info.notes + tuple(n for n in survey.notes if n != survey.family_reason))
         print_screen(result)
     return 0
+
+
+def _print_notes(notes) -> None:
+    """The run's notes (how the table was read, what was assumed), one line each."""
+    for note in dict.fromkeys(notes):
+        print(f"note: {note}")
 
 
 def run_predict(args) -> int:
     from .predict import predict_table, prediction_summary
     result = predict_table(args.model, args.data, args.out, decimal=args.decimal,
-                           kind="both" if args.link else "response")
+                           na_values=args.na_values, kind="both" if args.link else "response",
+                           overwrite=args.overwrite)
     if args.out is None:
-        result.to_csv(sys.stdout, index=False, lineterminator="\n")
+        try:
+            result.to_csv(sys.stdout, index=False, lineterminator="\n")
+            sys.stdout.flush()
+        except BrokenPipeError:
+            raise
+        except OSError as error:   # a full disk behind a redirection, say
+            from .outputs.folder import os_error_line
+            raise InputError(os_error_line(error, "standard output", "write the predictions to")) from None
     if not args.quiet:
         for note in result.attrs.get("notes", ()):
             print(f"note: {note}", file=sys.stderr)
@@ -363,15 +386,19 @@ def _is_earlier_demo(folder: Path) -> bool:
 
 
 def _finish(study, args, *, command, inputs=()) -> int:
-    from .outputs.write import write_study
+    from .outputs.write import run_notes, write_study
     from .report.terminal import print_summary
     out = write_study(study, args.out, overwrite=args.overwrite, command=command, inputs=inputs,
                       figures=args.figures)
+    notes = run_notes(study)
     if args.json:
         from .report.terminal import summary_dict
-        print(json.dumps(summary_dict(study, out)))
+        summary = summary_dict(study, out)
+        summary.setdefault("notes", notes)
+        print(json.dumps(summary))
     elif not args.quiet:
         print_summary(study, out)
+        _print_notes(n for n in notes if n != study.survey.family_reason)
         print(f"open {Path(out).resolve() / 'report.html'} in a web browser to explore the results")
     return 0
 

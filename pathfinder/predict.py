@@ -44,7 +44,8 @@ from .core.families import get_family
 from .data.design import Term, apply_design
 from .data.intake import PARQUET_SUFFIXES, as_labels, describe_values, parse_numbers, read_table
 from .diagnostics.extrapolation import mess, outside_range
-from .errors import InputError
+from .errors import InputError, setting
+from .outputs.folder import os_error_line
 from .outputs.model_file import check_document, load_model_document, write_atomically
 
 KINDS = ("response", "link", "both")
@@ -257,7 +258,7 @@ def load_model(path) -> Model:
     return Model(load_model_document(path), source=f"model file {Path(path).expanduser()}")
 
 
-def _check_out_path(out_path, data_path, model_path) -> Path:
+def _check_out_path(out_path, data_path, model_path, overwrite=False) -> Path:
     out = Path(out_path).expanduser()
     if out.is_dir():
         raise InputError(f"{out} is a folder; give --out a file name such as predictions.csv")
@@ -272,11 +273,14 @@ def _check_out_path(out_path, data_path, model_path) -> Path:
                          "written as CSV; give a name ending in .csv")
     if not out.parent.is_dir():
         raise InputError(f"the folder of the output file {out} does not exist; create it first")
+    if out.exists() and not overwrite:
+        raise InputError(f"the output file {out} already exists; choose another name, or "
+                         + setting("give overwrite=True", "add --overwrite") + " to replace it")
     return out
 
 
-def predict_table(model_path, data_path, out_path=None, *, decimal=None,
-                  kind="response") -> pd.DataFrame:
+def predict_table(model_path, data_path, out_path=None, *, decimal=None, na_values=None,
+                  kind="response", overwrite=False) -> pd.DataFrame:
     """Predict at the sites of a table file; optionally write them as CSV.
 
     The model file is read and checked first, then the table (CSV or Parquet,
@@ -284,12 +288,14 @@ def predict_table(model_path, data_path, out_path=None, *, decimal=None,
     column followed by the prediction columns, one row per input row; with
     ``out_path`` the same table is written as CSV (complete or not at all;
     never over the input or the model file), with the delimiter and decimal
-    mark of an input CSV. ``result.attrs["notes"]`` lists plain facts about
-    the run (detected delimiter, predictions per unit effort).
+    mark of an input CSV; an existing file is replaced only with
+    ``overwrite=True``. ``na_values`` are no-data codes read as missing (see
+    ``read_table``). ``result.attrs["notes"]`` lists plain facts about the
+    run (delimiter, decimal mark, predictions per unit effort).
     """
     model = load_model(model_path)
-    out = None if out_path is None else _check_out_path(out_path, data_path, model_path)
-    frame, info = read_table(data_path, decimal=decimal)
+    out = None if out_path is None else _check_out_path(out_path, data_path, model_path, overwrite)
+    frame, info = read_table(data_path, decimal=decimal, na_values=na_values)
     predicted = model.predict(frame, kind=kind)
     clash = [name for name in predicted.columns if name in frame.columns]
     if clash:
@@ -302,7 +308,10 @@ def predict_table(model_path, data_path, out_path=None, *, decimal=None,
         sep = info.delimiter or ","
         text = result.to_csv(index=False, sep=sep, decimal=info.decimal or ".",
                              lineterminator="\n")
-        write_atomically(out, text)
+        try:
+            write_atomically(out, text)
+        except OSError as error:
+            raise InputError(os_error_line(error, out, "write")) from None
     return result
 
 

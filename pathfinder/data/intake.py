@@ -12,8 +12,9 @@ Two steps, each a plain function:
   explained.
 
 Every problem a user can cause stops with one :class:`InputError` line that
-says what is wrong, where, and what to do about it. Rows are named the way a
-spreadsheet shows them: the header is row 1, so the first data row is row 2.
+says what is wrong, where, and what to do about it. Rows are data rows counted
+from 1 below the header, as in the ``row`` column of the output tables
+(folds.csv, sites.csv), and messages say so.
 """
 
 from __future__ import annotations
@@ -24,13 +25,21 @@ import hashlib
 import io
 import re
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from pathfinder.errors import InputError
+from pathfinder.data.number_format import (
+    MARK_NAMES,
+    NumberStyle,
+    column_marks,
+    float_column_proves_point,
+    read_grouped,
+    settle_style,
+)
+from pathfinder.errors import InputError, setting
 
 PARQUET_SUFFIXES = (".parquet", ".pq")
 DELIMITERS = (",", ";", "\t", "|")
@@ -57,22 +66,27 @@ _WHOLE_NUMBER = re.compile(r"^[+-]?\d+$")
 # ---------------------------------------------------------------------------
 
 
-ROW_CONVENTION = "(spreadsheet numbering, header = row 1)"
+ROW_CONVENTION = "(counted from 1 below the header)"
+
+
+def _opt(name: str) -> str:
+    """A setting named as the reader writes it: ``exclude`` in Python, ``--exclude`` on the command line."""
+    return setting(name, "--" + name.replace("_", "-"))
 
 
 def describe_rows(positions, limit: int = 5, convention: bool = True) -> str:
-    """Name table rows (0-based positions) as a spreadsheet shows them.
+    """Name table rows (0-based positions) as data rows counted from 1 below the header.
 
-    The header is row 1, so position 0 is row 2. At most ``limit`` rows are
+    Position 0 is data row 1, as in the output tables. At most ``limit`` rows are
     listed; the rest are counted. The numbering convention is stated unless
     ``convention`` is False (when a message states it once for several lists).
     """
     positions = [int(p) for p in positions]
-    shown = ", ".join(str(p + 2) for p in positions[:limit])
+    shown = ", ".join(str(p + 1) for p in positions[:limit])
     more = len(positions) - limit
     if more > 0:
         shown += f" and {more} more"
-    word = "row" if len(positions) == 1 else "rows"
+    word = "data row" if len(positions) == 1 else "data rows"
     return f"{word} {shown} {ROW_CONVENTION}" if convention else f"{word} {shown}"
 
 
@@ -140,14 +154,23 @@ def read_table(
     decimal: str | None = None,
     delimiter: str | None = None,
     columns: list[str] | None = None,
+    na_values=None,
 ) -> tuple[pd.DataFrame, TableInfo]:
     """Read a CSV or Parquet table without changing the file.
 
     CSV files must be UTF-8 (a byte-order mark is allowed). The delimiter
     (comma, semicolon, tab or pipe) is detected from the first lines unless
-    given. ``decimal=","`` reads numbers written with decimal commas; when
-    ``decimal`` is not given and the delimiter is not a comma, decimal commas
-    are detected from columns whose every value looks like ``12,5``.
+    given. ``decimal="."`` or ``decimal=","`` gives the decimal mark; the
+    other mark is then read as digit grouping (``1,234.5`` or ``1.234,5``)
+    where whole groups of three digits allow it. Without ``decimal`` the mark
+    is taken from numbers that read only one way (``12,5``, ``0.35``,
+    ``1,234,567``); a file whose only marked numbers read both ways
+    (``2,545``: 2.545 or 2545) is refused, naming the two readings (see
+    ``data/number_format.py``). The rule used is always in ``info.notes``.
+
+    ``na_values`` lists no-data codes (such as ``-9999`` or ``"n.d."``) to
+    read as missing: text equal to a code, and numbers equal to a numeric
+    code, in every column; how many were found is in ``info.notes``.
 
     Parquet files (``.parquet``, ``.pq``) are read column by column: with
     ``columns`` given, the other columns are never loaded.
@@ -159,9 +182,62 @@ def read_table(
     file = _check_file(path)
     if columns is not None:
         columns = [str(name) for name in columns]
+    codes = _missing_codes(na_values)
     if file.suffix.lower() in PARQUET_SUFFIXES:
-        return _read_parquet(file, columns)
-    return _read_csv(file, decimal=decimal, delimiter=delimiter, columns=columns)
+        frame, info = _read_parquet(file, columns)
+        frame, note = _read_missing_codes(frame, codes)
+        return frame, replace(info, notes=info.notes + ((note,) if note else ()))
+    return _read_csv(file, decimal=decimal, delimiter=delimiter, columns=columns, codes=codes)
+
+
+def _missing_codes(na_values) -> tuple:
+    """No-data codes as (text, number or None) pairs."""
+    if na_values is None:
+        return ()
+    if isinstance(na_values, (str, int, float)):
+        na_values = [na_values]
+    codes = []
+    for code in na_values:
+        text = str(code).strip()
+        if not text:
+            raise InputError("a no-data code is blank; blank cells are read as missing already")
+        number = pd.to_numeric(pd.Series([text]), errors="coerce").iloc[0]
+        codes.append((text, None if pd.isna(number) else float(number)))
+    return tuple(dict.fromkeys(codes))
+
+
+def _read_missing_codes(frame: pd.DataFrame, codes: tuple) -> tuple[pd.DataFrame, str | None]:
+    """Cells equal to a no-data code become missing; a note counts them per column."""
+    if not codes:
+        return frame, None
+    found = {}
+    for name in frame.columns:
+        series = frame[name]
+        if _is_date_column(series):
+            continue
+        hit = np.zeros(len(series), dtype=bool)
+        if pd.api.types.is_numeric_dtype(series) and not pd.api.types.is_bool_dtype(series):
+            values = series.to_numpy(dtype=np.float64, na_value=np.nan)
+            for _, number in codes:
+                if number is not None:
+                    hit |= values == number
+        elif _is_text(series):
+            text = series.astype("str").str.strip().to_numpy(dtype=object)
+            numbers = pd.to_numeric(pd.Series(text), errors="coerce").to_numpy(dtype=np.float64)
+            present = ~missing_cells(series)
+            for code, number in codes:
+                hit |= present & (text == code)
+                if number is not None:
+                    hit |= present & (numbers == number)
+        if hit.any():
+            frame[name] = series.mask(hit)
+            found[str(name)] = int(hit.sum())
+    shown = ", ".join(code for code, _ in codes)
+    if not found:
+        return frame, f"no-data code(s) {shown}: no cell holds one"
+    per_column = ", ".join(f"{name} {count}" for name, count in found.items())
+    return frame, (f"no-data code(s) {shown} read as missing in {sum(found.values())} cells "
+                   f"({per_column})")
 
 
 def _check_file(path) -> Path:
@@ -313,26 +389,74 @@ def _parse_csv(data: bytes, file, delimiter, decimal, positions) -> pd.DataFrame
         ) from exc
 
 
-def _looks_like_decimal_commas(frame: pd.DataFrame) -> str | None:
-    """Name of a text column whose every value is a number with a decimal comma."""
+def _parse_text(data: bytes, delimiter: str, names: list, wanted: list) -> pd.DataFrame:
+    """The named columns exactly as written (text), for a second look at their numbers."""
+    positions = [names.index(name) for name in wanted]
+    frame = pd.read_csv(io.BytesIO(data), encoding="utf-8-sig", sep=delimiter, header=0,
+                        index_col=False, usecols=positions, dtype=str, skipinitialspace=True,
+                        low_memory=False)
+    frame.columns = [names[i] for i in sorted(positions)]
+    return frame
+
+
+def _text_values(series: pd.Series) -> pd.Series:
+    """The non-missing values of a column as stripped text."""
+    values = series[~missing_cells(series)].astype("str").str.strip()
+    return values[values != ""]
+
+
+def _is_text(series: pd.Series) -> bool:
+    return not (pd.api.types.is_numeric_dtype(series) or pd.api.types.is_bool_dtype(series)
+                or _is_date_column(series))
+
+
+def _number_style(frame: pd.DataFrame, decimal, raw_text) -> NumberStyle:
+    """The decimal mark and digit grouping of the file (see data/number_format.py).
+
+    Text columns are looked at as written. Columns already read as numbers
+    with a decimal point prove the point unless every fraction could be a
+    group of three digits; only then, or when a decimal comma is seen
+    elsewhere, are those columns read again as text and looked at as written.
+    """
+    if decimal is not None:
+        return settle_style([], decimal, None)
+    text = [column_marks(name, _text_values(frame[name])) for name in frame.columns
+            if _is_text(frame[name])]
+    floats = [name for name in frame.columns if pd.api.types.is_float_dtype(frame[name])]
+    point = None
+    for name in floats:
+        value = float_column_proves_point(frame[name].to_numpy(dtype=np.float64))
+        if value is not None:
+            point = (name, value)
+            break
+    comma_seen = any("," in column.decimal for column in text)
+    settled = point is not None or any(column.decimal for column in text)
+    if floats and (not settled or comma_seen):
+        raw = raw_text(floats)
+        text += [column_marks(name, _text_values(raw[name])) for name in floats]
+        point = None
+    return settle_style(text, None, point)
+
+
+def _read_grouped_columns(frame: pd.DataFrame, style: NumberStyle, notes: list) -> pd.DataFrame:
+    """Text columns whose every value is a number in the file's style, read as numbers."""
+    grouped = []
     for name in frame.columns:
-        column = frame[name]
-        if pd.api.types.is_numeric_dtype(column) or pd.api.types.is_bool_dtype(column):
+        if not _is_text(frame[name]):
             continue
-        values = [str(v).strip() for v in column.dropna().tolist()]
-        values = [v for v in values if v]
-        if not values:
+        values = _text_values(frame[name])
+        if values.empty or not values.str.contains(re.escape(style.grouping) + "|" + re.escape(style.decimal)).any():
             continue
-        has_comma = False
-        for value in values:
-            if _COMMA_NUMBER.match(value):
-                has_comma = True
-            elif not _WHOLE_NUMBER.match(value):
-                break
-        else:
-            if has_comma:
-                return str(name)
-    return None
+        numbers = read_grouped(frame[name], style)
+        if numbers is not None:
+            frame[name] = numbers
+            if values.str.contains(re.escape(style.grouping)).any():
+                grouped.append(str(name))
+    if grouped:
+        listed = ", ".join(f"'{name}'" for name in grouped)
+        notes.append(f"digit grouping read in column(s) {listed}: the "
+                     f"{MARK_NAMES[style.grouping]}s between groups of three digits were removed")
+    return frame
 
 
 def _name_columns(frame, names, positions, file: Path, notes: list) -> pd.DataFrame:
@@ -354,7 +478,7 @@ def _name_columns(frame, names, positions, file: Path, notes: list) -> pd.DataFr
     return frame
 
 
-def _read_csv(file: Path, *, decimal, delimiter, columns) -> tuple[pd.DataFrame, TableInfo]:
+def _read_csv(file: Path, *, decimal, delimiter, columns, codes=()) -> tuple[pd.DataFrame, TableInfo]:
     _check_csv_options(decimal, delimiter)
     data = _read_bytes(file)
     sha256 = hashlib.sha256(data).hexdigest()
@@ -373,16 +497,21 @@ def _read_csv(file: Path, *, decimal, delimiter, columns) -> tuple[pd.DataFrame,
         _check_requested(columns, names, file)
         positions = sorted(names.index(name) for name in columns)
 
-    frame = _parse_csv(data, file, delimiter, decimal or ".", positions)
-    if decimal is None:
-        decimal = "."
-        comma_column = _looks_like_decimal_commas(frame) if delimiter != "," else None
-        if comma_column is not None:
-            decimal = ","
-            frame = _parse_csv(data, file, delimiter, decimal, positions)
-            notes.append(f"numbers use decimal commas (detected in column '{comma_column}')")
-
-    frame = _name_columns(frame, names, positions, file, notes)
+    parsed_with = decimal or "."
+    frame = _name_columns(_parse_csv(data, file, delimiter, parsed_with, positions),
+                          names, positions, file, notes)
+    frame, code_note = _read_missing_codes(frame, codes)
+    style = _number_style(frame, decimal, lambda wanted: _read_missing_codes(
+        _parse_text(data, delimiter, names, wanted), codes)[0])
+    if style.decimal != parsed_with:
+        frame = _name_columns(_parse_csv(data, file, delimiter, style.decimal, positions),
+                              names, positions, file, [])
+        frame, code_note = _read_missing_codes(frame, codes)
+    frame = _read_grouped_columns(frame, style, notes)
+    notes.append(style.note())
+    if code_note:
+        notes.append(code_note)
+    decimal = style.decimal
     if columns is not None:
         frame = frame[columns]
     if len(frame) == 0:
@@ -519,7 +648,8 @@ def _not_numbers_error(name, role, series, not_numbers) -> InputError:
     bad = [str(v).strip() for v in series.to_numpy(dtype=object)[rows]]
     hint = ""
     if any(_COMMA_NUMBER.match(value) for value in bad):
-        hint = " (they look like decimal commas: read the file with decimal=',')"
+        hint = (" (they look like decimal commas: if the file uses them, "
+                + setting("read it with decimal=','", "add --decimal ,") + ")")
     n_numbers = int((~missing_cells(series) & ~not_numbers).sum())
     what = "numbers but also text" if n_numbers else "text, not numbers,"
     return InputError(
@@ -541,6 +671,9 @@ def _read_number_column(frame, name, role) -> np.ndarray:
     return values
 
 
+LARGEST_USABLE = 1e150   # squares and sums of squares of larger numbers overflow
+
+
 def _check_finite(values: np.ndarray, name, role) -> None:
     infinite = np.isinf(values)
     if infinite.any():
@@ -549,6 +682,47 @@ def _check_finite(values: np.ndarray, name, role) -> None:
             f"{role} '{name}' has infinite values in {describe_rows(rows)}; replace "
             "them with real numbers or blank them"
         )
+    with np.errstate(invalid="ignore"):
+        huge = np.abs(values) > LARGEST_USABLE
+    if huge.any():
+        rows = np.flatnonzero(huge)
+        raise InputError(
+            f"{role} '{name}' has numbers too large to compute with "
+            f"({describe_values(values[rows])} in {describe_rows(rows)}; the limit is "
+            f"{LARGEST_USABLE:g} in size); check the units, or a no-data code such values stand for"
+        )
+
+
+SUSPECT_MIN_REPEATS = 3
+
+
+def suspected_code(name, values: np.ndarray) -> str | None:
+    """A warning when a column's lowest or highest value looks like a no-data code.
+
+    Such a value (-9999, 9999, -999) is repeated (at least three times) and
+    lies farther from the column's other values than those values spread:
+    the gap to the nearest other value exceeds their whole range. Real values
+    at an extreme rarely sit that far out, so the column is named and the
+    reading as missing is offered; nothing is changed.
+    """
+    v = values[np.isfinite(values)]
+    if v.size < 2 * SUSPECT_MIN_REPEATS:
+        return None
+    for code, side in ((v.min(), "below"), (v.max(), "above")):
+        count = int((v == code).sum())
+        rest = v[v != code]
+        if count < SUSPECT_MIN_REPEATS or np.unique(rest).size < 2:
+            continue
+        low, high = float(rest.min()), float(rest.max())
+        gap = low - code if side == "below" else code - high
+        if gap > high - low:
+            return (
+                f"column '{name}' holds {code:g} in {count} rows, far {side} its other values "
+                f"({low:g} to {high:g}): if it marks missing data, read it as missing with "
+                + setting(f"na_values=['{code:g}']", f"--na-values {code:g}")
+                + "; as it stands it is used as a real value"
+            )
+    return None
 
 
 @dataclass(frozen=True)
@@ -565,7 +739,7 @@ def _read_predictor(frame, name, force_categorical: bool, max_levels: int) -> _C
     series = frame[name]
     if _is_date_column(series):
         raise InputError(
-            f"predictor '{name}' holds dates; leave it out with exclude or turn it "
+            f"predictor '{name}' holds dates; leave it out with {_opt('exclude')} or turn it "
             "into a number (such as day of year) first"
         )
     missing = missing_cells(series)
@@ -583,15 +757,25 @@ def _read_predictor(frame, name, force_categorical: bool, max_levels: int) -> _C
         if all(_COMMA_NUMBER.match(v) or _WHOLE_NUMBER.match(v) for v in comma_like):
             raise InputError(
                 f"predictor '{name}' holds numbers written with decimal commas "
-                f"(such as '{comma_like[0]}'); read the file with decimal=','"
+                f"(such as '{comma_like[0]}') in a file whose other numbers use a decimal "
+                "point; write them with points, or if the whole file uses decimal commas, "
+                + setting("read it with decimal=','", "add --decimal ,")
             )
     labels = as_labels(series)
     levels = sorted({label for label in labels if label is not None})
     if len(levels) > max_levels:
+        if force_categorical:
+            raise InputError(
+                f"predictor '{name}' is listed as categorical but has {len(levels)} different "
+                f"values (more than {max_levels}); a category has a few classes, so take it "
+                f"out of {setting('categorical', '--categorical')} to use it as a number"
+                + setting(f", or raise max_levels (now {max_levels})", "")
+            )
         raise InputError(
             f"predictor '{name}' is text with {len(levels)} different values (more than "
-            f"max_levels={max_levels}); it looks like a name or code, not a category: "
-            "leave it out with exclude, or raise max_levels"
+            f"{max_levels}); it looks like a name or code, not a category: leave it out with "
+            + setting("exclude", "--exclude")
+            + setting(f", or raise max_levels (now {max_levels})", "")
         )
     return _Column(name, "categorical", labels, np.array([v is None for v in labels]))
 
@@ -702,6 +886,13 @@ def prepare_survey(
     keep, dropped_missing, messages = _rows_to_keep(missing_by_column, len(frame), missing)
     rows = np.flatnonzero(keep)
 
+    # Numbers that look like no-data codes (such as -9999): said, never changed.
+    numeric_used = ([c.name for c in columns if c.kind == "numeric"]
+                    + ([] if y_is_label else [response])
+                    + roles["effort"] + roles["offset"] + roles["weights"] + roles["coords"])
+    messages = [warning for name in numeric_used
+                if (warning := suspected_code(name, parse_numbers(frame[name])[0]))] + messages
+
     # Response and family on the kept rows.
     coded = _code_response(y_values[keep], y_is_label, family, response, rows)
     notes = [coded.reason]
@@ -793,14 +984,14 @@ def _resolve_roles(frame, response, effort, offset, weights, coords, groups) -> 
     """Check the role columns exist and do not overlap; role -> list of names."""
     if effort is not None and offset is not None:
         raise InputError(
-            f"give either effort ('{effort}') or offset ('{offset}'), not both: effort "
+            f"give either {_opt('effort')} ('{effort}') or {_opt('offset')} ('{offset}'), not both: effort "
             "becomes the offset log(effort)"
         )
     if coords is not None:
         if isinstance(coords, str) or len(coords) != 2:
             raise InputError(
-                f"coords needs two column names (x, y), got {coords!r}; for example "
-                "coords=('easting', 'northing')"
+                f"{_opt('coords')} needs two column names (x, y), got {coords!r}; for example "
+                + setting("coords=('easting', 'northing')", "--coords easting,northing")
             )
         coords = [str(c) for c in coords]
     roles = {
@@ -825,7 +1016,8 @@ def _resolve_roles(frame, response, effort, offset, weights, coords, groups) -> 
                 )
             seen[name] = role
     if roles["coords"] and roles["coords"][0] == roles["coords"][1]:
-        raise InputError(f"coords names '{roles['coords'][0]}' twice; give the x and the y column")
+        raise InputError(f"{_opt('coords')} names '{roles['coords'][0]}' twice; give the x and "
+                         "the y column")
     return roles
 
 
@@ -838,7 +1030,7 @@ def _resolve_predictors(frame, predictors, exclude, categorical, roles) -> list[
     for where, names in lists.items():
         unknown = [name for name in dict.fromkeys(names) if name not in frame.columns]
         if unknown:
-            raise _unknown_names_error(unknown, frame.columns, f"in {where}")
+            raise _unknown_names_error(unknown, frame.columns, f"in {_opt(where)}")
     modelled = {
         name for role in ("response", "effort", "offset", "weights") for name in roles[role]
     }
@@ -850,7 +1042,7 @@ def _resolve_predictors(frame, predictors, exclude, categorical, roles) -> list[
         if clash:
             raise InputError(
                 f"'{clash[0]}' is the response, effort, offset or weights column and "
-                "cannot also be a predictor; take it out of predictors"
+                f"cannot also be a predictor; take it out of {_opt('predictors')}"
             )
         wanted = set(predictors)
         chosen = [name for name in frame.columns if name in wanted]
@@ -859,11 +1051,12 @@ def _resolve_predictors(frame, predictors, exclude, categorical, roles) -> list[
     if forced:
         raise InputError(
             f"'{forced[0]}' is listed as categorical but is not a predictor; add it to "
-            "predictors or take it out of categorical"
+            f"{_opt('predictors')} or take it out of {_opt('categorical')}"
         )
     if not chosen:
         raise InputError(
-            "no predictor columns are left; list them with predictors, or exclude fewer"
+            f"no predictor columns are left; list them with {_opt('predictors')}, or "
+            f"{_opt('exclude')} fewer"
         )
     return chosen
 
@@ -946,7 +1139,7 @@ def _rows_to_keep(missing_by_column: dict, n: int, policy: str):
         ]
         raise InputError(
             f"missing values in {'; '.join(parts)} {ROW_CONVENTION}; fill them in, or use "
-            "missing='drop' to leave those rows out"
+            + setting("missing='drop'", "--missing drop") + " to leave those rows out"
         )
     if counts:
         per_column = ", ".join(f"{name} {count}" for name, count in counts.items())
@@ -1046,7 +1239,7 @@ def _check_counts(values, name, rows) -> None:
         raise InputError(
             f"response '{name}' must be a count (0, 1, 2, ...) for a poisson model but is "
             f"negative ({describe_values(values[where])}) in {describe_rows(rows[where])}; "
-            "correct the counts or choose family='gaussian'"
+            "correct the counts or choose " + setting("family='gaussian'", "--family gaussian")
         )
     fractional = values != np.round(values)
     if fractional.any():
@@ -1054,7 +1247,7 @@ def _check_counts(values, name, rows) -> None:
         raise InputError(
             f"response '{name}' must be a whole-number count for a poisson model but is "
             f"{describe_values(values[where])} in {describe_rows(rows[where])}; correct "
-            "the counts or choose family='gaussian'"
+            "the counts or choose " + setting("family='gaussian'", "--family gaussian")
         )
 
 
@@ -1104,7 +1297,8 @@ def _code_labels(values, family, name) -> _CodedResponse:
     if family in ("gaussian", "poisson"):
         raise InputError(
             f"response '{name}' is text ({describe_values(levels)}), but family "
-            f"'{family}' needs numbers; use family='binomial' or a numeric column"
+            f"'{family}' needs numbers; use " + setting("family='binomial'", "--family binomial")
+            + " or a numeric column"
         )
     zero, one, why = label_order(levels)
     y = np.array([value == one for value in values], dtype=np.float64)

@@ -26,6 +26,13 @@ def model_of(study) -> dict:
         package_version=__version__)
 
 
+def run_notes(study) -> list[str]:
+    """Every note of a run, once: how the table was read first, then the study's own."""
+    info = study.table_info
+    reading = tuple(info.notes) if info is not None else ()
+    return list(dict.fromkeys(reading + tuple(study.notes)))
+
+
 def write_csv(frame, path: Path) -> None:
     frame.to_csv(path, index=False, float_format="%.10g", lineterminator="\n")
 
@@ -48,7 +55,9 @@ def write_study(study, out, *, overwrite: bool = False, command: str = "explore"
         for name, frame in study.tables.items():
             write_csv(frame, folder / f"{name}.csv")
         save_model(model_of(study), folder / "model.json")
-        write_json(run_record(study, command), folder / "run.json")
+        record = run_record(study, command)
+        record["notes"] = run_notes(study)   # with how the table was read (decimal mark, codes)
+        write_json(record, folder / "run.json")
         if report:
             write_report(folder)
         if figures:

@@ -72,9 +72,9 @@ def csv_text(header, rows, delimiter=","):
     return "\n".join(delimiter.join(cells) for cells in [header, *rows]) + "\n"
 
 
-def spreadsheet_row(index):
-    """How a message names data row ``index`` (0-based): the header is row 1."""
-    return index + 2
+def data_row(index):
+    """How a message names data row ``index`` (0-based): "data row N", counted from 1 below the header."""
+    return f"data row {index + 1} "
 
 
 def snapshot(folder: Path) -> dict:

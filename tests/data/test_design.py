@@ -138,7 +138,7 @@ def test_unknown_level_is_named():
     with pytest.raises(InputError) as caught:
         apply_design(design.terms, design.reference_levels, new)
     message = str(caught.value)
-    assert "'substrate'" in message and "'gravel'" in message and "row 3" in message
+    assert "'substrate'" in message and "'gravel'" in message and "data row 2 " in message
 
 
 def test_unknown_level_allowed_gives_a_row_of_nan():
@@ -158,7 +158,7 @@ def test_missing_column_in_new_table_is_named():
 def test_missing_values_refused_when_building():
     frame = small_frame()
     frame.loc[2, "temp"] = np.nan
-    with pytest.raises(InputError, match="'temp'.*row 4"):
+    with pytest.raises(InputError, match="'temp'.*data row 3 "):
         build_design(frame, ["temp", "rain"])
 
 
