@@ -50,7 +50,7 @@ import numpy as np
 from ..core import kernels_leaps, kernels_search
 from ..core import kernels_subsets as kernels
 
-FIRST_PASS_MODELS = 1 << 20      # models the first Gaussian pass may visit (about 3 s)
+FIRST_PASS_MODELS = 1 << 18      # models the first Gaussian pass may visit (under a second)
 N_PARTS = 16                     # tasks of a longer Gaussian search (a fixed rule)
 TOP_DEPTH = 10                   # the shared top of the tree: nodes with more than p - 10 free terms
 DEFAULT_GAUSSIAN_MODELS = 200_000_000   # about ten minutes on one core for the hardest searches

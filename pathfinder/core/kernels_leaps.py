@@ -34,10 +34,13 @@ Cutting a branch
 ----------------
 ``limit[s]`` is the RSS of the ``keep``-th best model of size s known so far
 (the kept slots of this search, or given thresholds ``seed_limit`` from real
-models found earlier; infinite while fewer are known). A branch of sizes
-``lo..hi`` with bound B is cut when ``B > limit[s] * (1 + rel_margin) +
-abs_margin`` for every s in ``lo..hi``: every model in it is then worse, by
-more than rounding, than ``keep`` models already in hand. The margin keeps
+models found earlier; infinite while fewer are known). A size s is beaten in
+a branch with bound B when ``B > limit[s] * (1 + rel_margin) + abs_margin``:
+every model of that size in the branch is worse, by more than rounding, than
+``keep`` models already in hand. A branch keeps only the sizes up to the
+largest one not beaten (the limits fall as the size grows, so the sizes
+beaten are mostly the largest), and is cut when every size it holds is
+beaten. The margin keeps
 the kept set the same whichever order the branches are searched in and
 however the tree is cut into tasks (rounding differs between the route to a
 subset and the route to its bound).
@@ -137,17 +140,16 @@ def _order_free(M, d, r, free, diag0, alias_tol, W, act, order, bound, rss):
 
 
 @njit(cache=True)
-def _cut(bound, lo, hi, limit, seed_limit, use_own, rel_margin, abs_margin):
-    """Can a branch of sizes lo..hi whose models all have RSS >= bound be skipped?"""
-    if lo > hi:
-        return True
-    for s in range(lo, hi + 1):
+def _alive_up_to(bound, lo, hi, limit, seed_limit, use_own, rel_margin, abs_margin):
+    """Largest size in lo..hi that a branch whose models all have RSS >= bound could still
+    improve; ``lo - 1`` when it can improve none (the branch is cut)."""
+    for s in range(hi, lo - 1, -1):
         lim = seed_limit[s]
         if use_own and limit[s] < lim:
             lim = limit[s]
         if not (bound > lim * (1.0 + rel_margin) + abs_margin):
-            return False
-    return True
+            return s
+    return lo - 1
 
 
 @njit(cache=True)
@@ -182,6 +184,7 @@ def leaps_search(A, max_size, keep, alias_tol, rel_margin, abs_margin, seed_limi
     rss = np.zeros(depth_max + 1)
     path = np.zeros(depth_max + 1, dtype=np.int64)          # members in the order added
     top = np.zeros(depth_max + 1, dtype=np.bool_)           # node belongs to the shared top
+    ceiling = np.zeros(depth_max + 1, dtype=np.int64)        # largest size worth searching below
     W = np.zeros((q, q))
     act = np.zeros(q, dtype=np.int64)
     order = np.zeros(q, dtype=np.int64)
@@ -204,6 +207,7 @@ def leaps_search(A, max_size, keep, alias_tol, rel_margin, abs_margin, seed_limi
     n_free[0] = p
     rss[0] = A[p, p]
     top[0] = p > split_free
+    ceiling[0] = max_size
     done = 0
     if part == 0 or not top[0]:
         visited[0] += 1
@@ -221,7 +225,7 @@ def leaps_search(A, max_size, keep, alias_tol, rel_margin, abs_margin, seed_limi
     stopped = False
     while d >= 0:
         r = n_free[d]
-        if nxt[d] >= r or d >= max_size:
+        if nxt[d] >= r or d >= ceiling[d]:
             d -= 1
             continue
         if done >= budget:
@@ -230,13 +234,16 @@ def leaps_search(A, max_size, keep, alias_tol, rel_margin, abs_margin, seed_limi
         t = nxt[d]
         nxt[d] = t + 1
         hi = d + r - t
-        if hi > max_size:
-            hi = max_size
+        if hi > ceiling[d]:
+            hi = ceiling[d]
         own = not top[d]
-        if _cut(bound[d, t], d + 1, hi, limit, seed_limit, own, rel_margin, abs_margin):
-            if own or part == 0:
-                _note_cut(d + 1, hi, cut_sizes)
+        alive = _alive_up_to(bound[d, t], d + 1, hi, limit, seed_limit, own, rel_margin,
+                             abs_margin)
+        if own or part == 0:
+            _note_cut(alive + 1, hi, cut_sizes)
+        if alive < d + 1:
             continue
+        hi = alive
         child_free = r - 1 - t
         child_top = child_free > split_free
         if top[d] and not child_top:
@@ -276,9 +283,11 @@ def leaps_search(A, max_size, keep, alias_tol, rel_margin, abs_margin, seed_limi
         if child_free == 0 or d + 1 >= max_size:
             continue
         own_child = not child_top
-        if _cut(bound[d, t], d + 2, hi, limit, seed_limit, own_child, rel_margin, abs_margin):
-            if own_child or part == 0:
-                _note_cut(d + 2, hi, cut_sizes)
+        alive = _alive_up_to(bound[d, t], d + 2, hi, limit, seed_limit, own_child, rel_margin,
+                             abs_margin)
+        if own_child or part == 0:
+            _note_cut(alive + 1, hi, cut_sizes)
+        if alive < d + 2:
             continue
         # descend: Schur complement of pivot t on the later free terms and the response
         c = d + 1
@@ -297,20 +306,21 @@ def leaps_search(A, max_size, keep, alias_tol, rel_margin, abs_margin, seed_limi
         rss[c] = child_rss
         nxt[c] = 0
         top[c] = child_top
+        ceiling[c] = alive
         _order_free(M, c, child_free, free, diag0, alias_tol, W, act, order, bound, child_rss)
         d = c
     if stopped:
         # every branch still waiting on the stack leaves its sizes unproved
         for e in range(d, -1, -1):
             r = n_free[e]
-            if e >= max_size:
+            if e >= ceiling[e]:
                 continue
             for t in range(nxt[e], r):
                 hi = e + r - t
-                if hi > max_size:
-                    hi = max_size
-                if not _cut(bound[e, t], e + 1, hi, limit, seed_limit, not top[e],
-                            rel_margin, abs_margin):
-                    for s in range(e + 1, hi + 1):
-                        open_sizes[s] = True
+                if hi > ceiling[e]:
+                    hi = ceiling[e]
+                alive = _alive_up_to(bound[e, t], e + 1, hi, limit, seed_limit, not top[e],
+                                     rel_margin, abs_margin)
+                for s in range(e + 1, alive + 1):
+                    open_sizes[s] = True
     return done
