@@ -238,6 +238,9 @@ def _options_from(args):
             settings[name] = value
     data = args.data or settings.pop("data", None)
     settings.pop("data", None)
+    figures = settings.pop("figures", None)
+    if getattr(args, "figures", None) is None:
+        args.figures = figures
     if data is None:
         raise InputError("name the survey table: pathfinder explore DATA --response COL "
                          "(or 'data = ...' in the study file)")

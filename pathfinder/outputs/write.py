@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 from pathlib import Path
 
 from .. import __version__
@@ -21,7 +22,7 @@ def model_of(study) -> dict:
         offset_rule=survey.offset_rule, training_frame=survey.frame, training_X=design.X,
         weights=survey.weights,
         pick={"method": choice.method, "rule": choice.rule, "mix": choice.mix,
-              "penalty": choice.penalty, "relaxation": choice.relax,
+              "penalty": choice.penalty, "relaxation": choice.relaxation,
               "metric": study.options.metric, "cv_score": choice.inner_score},
         package_version=__version__)
 
@@ -31,6 +32,23 @@ def run_notes(study) -> list[str]:
     info = study.table_info
     reading = tuple(info.notes) if info is not None else ()
     return list(dict.fromkeys(reading + tuple(study.notes)))
+
+
+def _where_to_find_it_again(record: dict, study, out, command: str, figures) -> None:
+    """What a rerun from this run.json needs beyond the options: the table's path, the figures.
+
+    The path is relative to the output folder, so a project folder can move as
+    a whole; the rerun checks the table's SHA-256 (see study_file.py).
+    """
+    record["output"] = {"figures": figures}
+    info = study.table_info
+    if info is None or record.get("input") is None or command == "demo":
+        return
+    table = Path(info.path).resolve()
+    try:
+        record["input"]["path"] = Path(os.path.relpath(table, Path(out).resolve())).as_posix()
+    except ValueError:   # another drive (Windows): only an absolute path finds it
+        record["input"]["path"] = table.as_posix()
 
 
 def write_csv(frame, path: Path) -> None:
@@ -57,6 +75,7 @@ def write_study(study, out, *, overwrite: bool = False, command: str = "explore"
         save_model(model_of(study), folder / "model.json")
         record = run_record(study, command)
         record["notes"] = run_notes(study)   # with how the table was read (decimal mark, codes)
+        _where_to_find_it_again(record, study, out, command, figures)
         write_json(record, folder / "run.json")
         if report:
             write_report(folder)
