@@ -87,11 +87,12 @@ def _add_model_options(p):
     p.add_argument("--mix", dest="mixes", type=_numbers, metavar="M1,M2,..",
                    help="lasso-to-ridge mix values: 1 lasso, 0 ridge, between: elastic net "
                         f"(default {_listed(defaults.MIXES)})")
-    p.add_argument("--penalties", dest="n_penalties", type=int, metavar="N",
-                   help=f"penalties on the path (default {defaults.N_PENALTIES})")
-    p.add_argument("--penalty-ratio", type=float, metavar="R",
-                   help="smallest penalty as a fraction of the largest (default 1e-4, or 1e-2 when "
-                        "there are more terms than rows)")
+    p.add_argument("--grid-decades", type=float, metavar="D",
+                   help="how far the penalty grid runs below its start, in powers of ten "
+                        f"(default {defaults.GRID_DECADES:g}, or {defaults.GRID_DECADES_WIDE:g} "
+                        "when terms are at least as many as sites)")
+    p.add_argument("--grid-per-decade", type=int, metavar="N",
+                   help=f"penalties in each power of ten of the grid (default {defaults.GRID_PER_DECADE})")
     p.add_argument("--seed", type=int, help=f"seed for every random choice (default {defaults.SEED})")
 
 
@@ -105,7 +106,7 @@ def _add_choosing_options(p):
     p.add_argument("--metric",
                    choices=["deviance", "mse", "mae", "auc", "brier", "log_loss", "deviance_explained"],
                    help=f"held-out measure that picks the penalty (default {defaults.METRIC})")
-    p.add_argument("--no-relax", dest="relax", action="store_const", const=False,
+    p.add_argument("--no-relaxed-lasso", dest="relaxed_lasso", action="store_const", const=False,
                    help="skip the relaxed lasso")
     p.add_argument("--no-nested", dest="nested", action="store_const", const=False,
                    help="skip nested cross-validation (faster, but no honest error for the comparison)")

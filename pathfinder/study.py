@@ -63,14 +63,14 @@ class StudyOptions:
     squares: bool | tuple = False
     interactions: bool | tuple = False
     mixes: tuple = defaults.MIXES
-    n_penalties: int = defaults.N_PENALTIES
-    penalty_ratio: float | None = None
+    grid_decades: float | None = None   # None: defaults.GRID_DECADES (GRID_DECADES_WIDE when wide)
+    grid_per_decade: int = defaults.GRID_PER_DECADE
     standardize: bool = True
     folds: int = defaults.FOLDS
     block_size: float | None = None
     repeats: int = 1
     metric: str = defaults.METRIC
-    relax: bool = True
+    relaxed_lasso: bool = True
     nested: bool = True
     inner_folds: int = defaults.INNER_FOLDS
     stability: bool = True
@@ -87,10 +87,11 @@ class StudyOptions:
         if not mixes or any(not 0.0 <= m <= 1.0 for m in mixes):
             raise InputError(f"mix values must lie between 0 (ridge) and 1 (lasso); got {self.mixes}")
         object.__setattr__(self, "mixes", tuple(dict.fromkeys(mixes)))
-        if int(self.n_penalties) < 2:
-            raise InputError("the number of penalties must be at least 2")
-        if self.penalty_ratio is not None and not 0 < float(self.penalty_ratio) < 1:
-            raise InputError("the penalty ratio must lie strictly between 0 and 1, e.g. 0.001")
+        if int(self.grid_per_decade) < 1:
+            raise InputError("the penalties per decade must be at least 1 (--grid-per-decade)")
+        if self.grid_decades is not None and not 0 < float(self.grid_decades) <= 12:
+            raise InputError("the grid depth must lie between 0 and 12 powers of ten, e.g. 3 "
+                             "(--grid-decades)")
         if int(self.folds) < 2 or int(self.inner_folds) < 2:
             raise InputError("cross-validation needs at least 2 folds (outer and inner)")
         if int(self.repeats) < 1:
@@ -241,12 +242,13 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
         warnings.simplefilter("always", FitWarning)
         cv = stages.run("cross-validating the paths", lambda tick: cross_validate(
             problem, splits, mixes=options.mixes, metrics=metrics, primary=options.metric,
-            n_penalties=int(options.n_penalties), penalty_ratio=options.penalty_ratio,
-            run=runner(tick)), total=len(splits) * len(options.mixes))
+            decades=options.grid_decades, per_decade=int(options.grid_per_decade),
+            repeats=folds.n_repeats, run=runner(tick)), total=len(splits) * len(options.mixes))
         relaxed = None
-        if options.relax and 1.0 in cv.fits:
+        if options.relaxed_lasso and 1.0 in cv.fits:
             relaxed = stages.run("relaxing the lasso", lambda tick: relaxed_lasso(
-                problem, cv.fits[1.0], splits, metric=options.metric, run=runner(tick)),
+                problem, cv.fits[1.0], splits, metric=options.metric, repeats=folds.n_repeats,
+                run=runner(tick)),
                 total=len(splits))
         criteria = stages.run("information criteria", lambda _: _criteria_table(cv.fits, problem))
         full_choices = choices(cv, relaxed)
@@ -283,8 +285,8 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
         if options.nested:
             outer = stages.run("nested cross-validation", lambda tick: nested_cv(
                 problem, folds.splits(0), plan, seed=options.seed, inner_k=int(options.inner_folds),
-                mixes=options.mixes, metric=options.metric, n_penalties=int(options.n_penalties),
-                penalty_ratio=options.penalty_ratio, relax=options.relax, selectors=selectors,
+                mixes=options.mixes, metric=options.metric, decades=options.grid_decades,
+                per_decade=int(options.grid_per_decade), relaxed_lasso=options.relaxed_lasso, selectors=selectors,
                 run=runner(tick)), total=folds.n_folds)
         if options.subsets:   # after nested CV: its data go out once, on their own
             search, steps, made = stages.run("subset search", lambda tick: chooser.run(

@@ -135,7 +135,7 @@ def test_every_default_in_the_help_comes_from_the_defaults_module():
     explore = next(a for a in parser._subparsers._group_actions[0].choices.items()
                    if a[0] == "explore")[1]
     text = " ".join(explore.format_help().split())
-    for value in (defaults.FOLDS, defaults.INNER_FOLDS, defaults.N_PENALTIES, defaults.SEED,
+    for value in (defaults.FOLDS, defaults.INNER_FOLDS, defaults.GRID_PER_DECADE, defaults.SEED,
                   defaults.STABILITY_PAIRS, defaults.STABILITY_THRESHOLD, defaults.METRIC):
         assert f"default {value}" in text
     assert "default " + ",".join(f"{m:g}" for m in defaults.MIXES) in text

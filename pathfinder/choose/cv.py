@@ -114,18 +114,37 @@ def fold_tasks(fits: dict, splits, metrics, tol=FOLD_TOL) -> list:
             for mix, fit in fits.items() for k, (train, test) in enumerate(splits)]
 
 
-def summarise(fits: dict, results, metrics, primary) -> tuple[pd.DataFrame, pd.DataFrame, float]:
+def fold_mean_se(scores, repeats=1) -> tuple[np.ndarray, np.ndarray]:
+    """Cross-validated mean and standard error of fold scores (folds x penalties).
+
+    The mean is over every fold, each counting equally. The standard error
+    is over the K fold positions: with R repeats of K folds (the scores in
+    repeat-major order) the R scores of each position are averaged first,
+    then ``SE = sd(position means) / sqrt(K)``. Repeats steady the mean, but
+    the folds of one partition are not independent of another's, so pooling
+    all R K folds would shrink the SE as 1 / sqrt(R) and pull the
+    one-standard-error pick onto the minimum (Hastie, Tibshirani & Friedman
+    2009, section 7.10; Bengio & Grandvalet 2004 show no unbiased estimator
+    of this variance exists, so this one is a working convention).
+    """
+    scores = np.asarray(scores, dtype=float)
+    if repeats > 1 and scores.shape[0] % repeats == 0:
+        scores = scores.reshape(repeats, scores.shape[0] // repeats, -1).mean(axis=0)
+    count = scores.shape[0]
+    mean = scores.mean(axis=0)
+    se = scores.std(axis=0, ddof=1) / np.sqrt(count) if count > 1 else np.zeros(scores.shape[1])
+    return mean, se
+
+
+def summarise(fits: dict, results, metrics, primary, repeats=1) -> tuple[pd.DataFrame, pd.DataFrame, float]:
     """Curves (mean and SE over folds), picks per mix, and the best mix."""
     rows, picks = [], []
     for mix, fit in fits.items():
         mine = [r for r in results if r.mix == mix]
         K = len(fit.penalties)
-        n_folds = len(mine)
         train = np.mean([r.training for r in mine], axis=0)
         for metric in metrics:
-            scores = np.array([r.held_out[metric] for r in mine])
-            mean = scores.mean(axis=0)
-            se = scores.std(axis=0, ddof=1) / np.sqrt(n_folds) if n_folds > 1 else np.zeros(K)
+            mean, se = fold_mean_se([r.held_out[metric] for r in mine], repeats)
             rows.append(pd.DataFrame({
                 "mix": mix, "step": np.arange(K), "penalty": fit.penalties,
                 "n_terms": fit.n_terms, "metric": metric, "cv_mean": mean, "cv_se": se,
@@ -161,8 +180,8 @@ def selected_terms(fit, step) -> list:
 
 
 def cross_validate(problem: Problem, splits, *, mixes=(1.0,), metrics=("deviance",),
-                   primary="deviance", n_penalties=100, penalty_ratio=None, rows=None,
-                   fold_tol=None, full_tol=None, run=None) -> CVResult:
+                   primary="deviance", decades=None, per_decade=None, n_penalties=None, rows=None,
+                   fold_tol=None, full_tol=None, repeats=1, run=None) -> CVResult:
     """Cross-validate a path for each mix on the given (train, test) splits.
 
     The grid of each mix comes from its path on ``rows`` (default: all rows;
@@ -174,16 +193,17 @@ def cross_validate(problem: Problem, splits, *, mixes=(1.0,), metrics=("deviance
 
     ``run(fn, tasks, shared)`` executes the fold tasks (default: in this
     process); pass a wrapper of :func:`pathfinder.parallel.run_tasks` to
-    spread them over workers.
+    spread them over workers. With repeated cross-validation the splits come
+    repeat by repeat and ``repeats`` says how many (see :func:`fold_mean_se`).
     """
     metrics = tuple(dict.fromkeys((primary,) + tuple(metrics)))
     precision = {} if full_tol is None else {"tol": full_tol}
-    fits = {float(mix): problem.fit(rows=rows, mix=float(mix), n_penalties=n_penalties,
-                                    penalty_ratio=penalty_ratio, **precision) for mix in mixes}
+    fits = {float(mix): problem.fit(rows=rows, mix=float(mix), decades=decades,
+                                    per_decade=per_decade, n_penalties=n_penalties, **precision) for mix in mixes}
     tasks = fold_tasks(fits, splits, metrics, FOLD_TOL if fold_tol is None else fold_tol)
     problem.cross_products  # computed once here, shipped with the problem to workers
     results = (run or run_here)(run_fold, tasks, problem)
-    curves, picks, best_mix = summarise(fits, results, metrics, primary)
+    curves, picks, best_mix = summarise(fits, results, metrics, primary, repeats)
     notes = tuple(f"a fold's path at mix {r.mix:g} (fold {r.fold + 1}) stopped after "
                   f"{r.n_fitted} of {len(fits[r.mix].penalties)} penalties; its last model "
                   "stands in for the rest" for r in results if r.n_fitted < len(fits[r.mix].penalties))

@@ -451,8 +451,9 @@ def _lopsided_note(fold: np.ndarray, k: int, unit: str) -> tuple[str, ...]:
         big = int(np.argmax(sizes))
         return (
             f"fold sizes are uneven ({sizes.min()} to {sizes.max()} sites) because some "
-            f"{unit}s are large; fold {big} holds {sizes.max()} sites and weighs more in "
-            "the skill estimate",
+            f"{unit}s are large; fold {big + 1} holds {sizes.max()} sites. Every fold counts "
+            "equally in the cross-validated error (its mean over folds), so a small fold's "
+            "few sites count as much as a large fold's many",
         )
     return ()
 

@@ -19,7 +19,7 @@ from itertools import combinations
 import numpy as np
 import pandas as pd
 
-from ..defaults import FOLD_TOL, INNER_FOLDS, METRIC, NESTED_PENALTIES, N_PENALTIES
+from ..defaults import FOLD_TOL, GRID_PER_DECADE, INNER_FOLDS, METRIC, NESTED_PER_DECADE
 from .cv import cross_validate
 from .folds import make_folds
 from .metrics import score
@@ -77,7 +77,7 @@ def choices(cv, relaxed=None) -> list[Choice]:
         for _, pick in relaxed.picks.iterrows():
             b0, b = relaxed.models[pick.rule]
             out.append(Choice(RELAXED_LASSO, pick.rule, 1.0, float(pick.penalty), float(b0), b,
-                              float(pick.cv_mean), lasso.names, relax=float(pick.relax)))
+                              float(pick.cv_mean), lasso.names, relaxation=float(pick.relaxation)))
     return out
 
 
@@ -91,9 +91,10 @@ class OuterTask:
     inner_k: int
     mixes: tuple
     metric: str
-    n_penalties: int
-    penalty_ratio: float | None
-    relax: bool
+    decades: float | None
+    per_decade: int
+    n_penalties: int | None
+    relaxed_lasso: bool
     selectors: tuple = ()
 
 
@@ -102,10 +103,10 @@ def run_outer_fold(problem: Problem, task: OuterTask) -> list[dict]:
     inner = task.plan.make(problem.y, task.train, task.seed, k=task.inner_k)
     splits = [(task.train[a], task.train[b]) for a, b in _all_splits(inner)]
     cv = cross_validate(problem, splits, mixes=task.mixes, primary=task.metric,
-                        n_penalties=task.n_penalties, penalty_ratio=task.penalty_ratio,
+                        decades=task.decades, per_decade=task.per_decade, n_penalties=task.n_penalties,
                         rows=task.train, full_tol=FOLD_TOL)
     relaxed = None
-    if task.relax and 1.0 in cv.fits:
+    if task.relaxed_lasso and 1.0 in cv.fits:
         relaxed = relaxed_lasso(problem, cv.fits[1.0], splits, metric=task.metric, rows=task.train)
     fam = problem.family
     y, w = problem.y[task.test], problem.part(problem.weights, task.test)
@@ -131,7 +132,8 @@ def _all_splits(folds):
 
 
 def nested_cv(problem: Problem, outer_splits, plan: FoldPlan, *, seed, inner_k=INNER_FOLDS, mixes=(1.0,),
-              metric=METRIC, n_penalties=N_PENALTIES, penalty_ratio=None, relax=True, selectors=(),
+              metric=METRIC, decades=None, per_decade=GRID_PER_DECADE, n_penalties=None, relaxed_lasso=True,
+              selectors=(),
               run=None) -> pd.DataFrame:
     """Outer-fold scores of every method and rule: one row per (outer fold, method, rule).
 
@@ -139,12 +141,13 @@ def nested_cv(problem: Problem, outer_splits, plan: FoldPlan, *, seed, inner_k=I
     ``seed``), so the result does not depend on where the folds ran.
     ``selectors`` (see :mod:`pathfinder.choose.selectors`) add methods that
     are not a penalty pick, each redone on every outer training set. Inside
-    the outer folds the paths use at most NESTED_PENALTIES penalties and converge to FOLD_TOL:
+    the outer folds the paths use at most NESTED_PER_DECADE penalties per decade and converge to FOLD_TOL:
     ample for choosing, and it keeps the whole procedure affordable.
     """
     seeds = spawn_seeds(seed, len(outer_splits))
     tasks = [OuterTask(k, train, test, seeds[k], plan, inner_k, tuple(float(m) for m in mixes), metric,
-                       min(int(n_penalties), NESTED_PENALTIES), penalty_ratio, relax, tuple(selectors))
+                       decades, min(int(per_decade), NESTED_PER_DECADE), n_penalties, relaxed_lasso,
+                       tuple(selectors))
              for k, (train, test) in enumerate(outer_splits)]
     results = (run or run_here)(run_outer_fold, tasks, problem)
     return pd.DataFrame([row for rows in results for row in rows])
@@ -231,9 +234,9 @@ def held_out_predictions(problem: Problem, splits, choice: Choice, grid) -> np.n
             continue
         fit = problem.fit(rows=train, mix=choice.mix, penalties=steps, tol=FOLD_TOL)
         b0, b = fit.intercept[-1], fit.coef[-1]
-        if choice.relax is not None:
+        if choice.relaxation is not None:
             r0, r = refit(problem, train, np.flatnonzero(b))
-            b0, b = choice.relax * b0 + (1 - choice.relax) * r0, choice.relax * b + (1 - choice.relax) * r
+            b0, b = choice.relaxation * b0 + (1 - choice.relaxation) * r0, choice.relaxation * b + (1 - choice.relaxation) * r
         eta = problem.linear_predictor(np.array([b0]), b[None, :], test)[:, 0]
         out[test] = fam.inverse_link(eta)
     return out

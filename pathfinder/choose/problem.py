@@ -144,7 +144,7 @@ class Choice:
     coef: np.ndarray
     inner_score: float
     names: tuple
-    relax: float | None = None
+    relaxation: float | None = None
 
     @property
     def terms(self) -> tuple:

@@ -3,8 +3,8 @@
 The lasso shrinks the coefficients of the terms it keeps. The relaxed lasso
 separates the two jobs: the lasso at penalty ``lam`` chooses the active set
 A(lam); an unpenalised refit on A(lam) gives ``b_refit``; the relaxed model
-blends them, ``b = relax * b_lasso + (1 - relax) * b_refit``, with the
-relaxation ``relax`` in [0, 1] (1 is the lasso itself, 0 the plain refit)
+blends them, ``b = relaxation * b_lasso + (1 - relaxation) * b_refit``, with the
+relaxation ``relaxation`` in [0, 1] (1 is the lasso itself, 0 the plain refit)
 chosen together with ``lam`` on the same folds.
 
 The "unpenalised" refit carries a ridge penalty of 1e-6 (on standardised
@@ -20,11 +20,15 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .cv import FoldTask, _pad, pick_steps, selected_terms
+from .cv import FoldTask, _pad, fold_mean_se, pick_steps, selected_terms
+from ..defaults import RELAXATION_STEPS
 from .metrics import METRICS, score
 from .problem import Problem, refit, run_here
 
-RELAX_GRID = (0.0, 0.25, 0.5, 0.75, 1.0)
+# Relaxations tried: 0 (the refit), 1/8, ..., 1 (the lasso). Blending costs no fit,
+# only scoring, so a grid finer than a handful of values is cheap.
+RELAXATIONS = tuple(i / RELAXATION_STEPS for i in range(RELAXATION_STEPS + 1))
+
 
 
 def refit_path(problem: Problem, fit, rows) -> tuple[np.ndarray, np.ndarray]:
@@ -40,16 +44,16 @@ def refit_path(problem: Problem, fit, rows) -> tuple[np.ndarray, np.ndarray]:
     return intercepts, coefs
 
 
-def blend(fit, refit_intercepts, refit_coefs, relax):
-    """Intercepts (K,) and coefficients (K, p) of the relaxed path at one ``relax``."""
-    return (relax * fit.intercept + (1 - relax) * refit_intercepts,
-            relax * fit.coef + (1 - relax) * refit_coefs)
+def blend(fit, refit_intercepts, refit_coefs, relaxation):
+    """Intercepts (K,) and coefficients (K, p) of the relaxed path at one ``relaxation``."""
+    return (relaxation * fit.intercept + (1 - relaxation) * refit_intercepts,
+            relaxation * fit.coef + (1 - relaxation) * refit_coefs)
 
 
 @dataclass(frozen=True, eq=False)
 class RelaxedScores:
     fold: int
-    held_out: dict          # relax -> (K,) primary metric
+    held_out: dict          # relaxation -> (K,) primary metric
 
 
 def run_relaxed_fold(problem: Problem, task: FoldTask) -> RelaxedScores:
@@ -61,23 +65,23 @@ def run_relaxed_fold(problem: Problem, task: FoldTask) -> RelaxedScores:
     metric = task.metrics[0]
     K = len(task.penalties)
     held = {}
-    for relax in RELAX_GRID:
-        b0, b = blend(fit, b0_refit, b_refit, relax)
+    for relaxation in RELAXATIONS:
+        b0, b = blend(fit, b0_refit, b_refit, relaxation)
         mu = fam.inverse_link(problem.linear_predictor(b0, b, task.test))
-        held[relax] = _pad(np.array([score(metric, y, mu[:, k], fam, w)
+        held[relaxation] = _pad(np.array([score(metric, y, mu[:, k], fam, w)
                                      for k in range(mu.shape[1])]), K)
     return RelaxedScores(task.fold, held)
 
 
 @dataclass(frozen=True, eq=False)
 class RelaxedResult:
-    curves: pd.DataFrame     # relax, step, penalty, n_terms, metric, cv_mean, cv_se
-    picks: pd.DataFrame      # rule, relax, step, penalty, n_terms, cv_mean, cv_se, terms
+    curves: pd.DataFrame     # relaxation, step, penalty, n_terms, metric, cv_mean, cv_se
+    picks: pd.DataFrame      # rule, relaxation, step, penalty, n_terms, cv_mean, cv_se, terms
     models: dict             # rule -> (intercept, coef (p,)) of the relaxed model picked
 
 
 def relaxed_lasso(problem: Problem, lasso_fit, splits, *, metric="deviance", rows=None,
-                  run=None) -> RelaxedResult:
+                  repeats=1, run=None) -> RelaxedResult:
     """Cross-validate the relaxation and the penalty of a lasso path on ``splits``.
 
     ``lasso_fit`` is the lasso path on ``rows`` (default: every row); the
@@ -90,25 +94,23 @@ def relaxed_lasso(problem: Problem, lasso_fit, splits, *, metric="deviance", row
     K = len(lasso_fit.penalties)
     larger = METRICS[metric].larger_is_better
     parts, best = [], None
-    for relax in RELAX_GRID:
-        scores = np.array([r.held_out[relax] for r in results])
-        mean = scores.mean(axis=0)
-        se = scores.std(axis=0, ddof=1) / np.sqrt(len(results))
-        parts.append(pd.DataFrame({"relax": relax, "step": np.arange(K), "penalty": lasso_fit.penalties,
+    for relaxation in RELAXATIONS:
+        mean, se = fold_mean_se([r.held_out[relaxation] for r in results], repeats)
+        parts.append(pd.DataFrame({"relaxation": relaxation, "step": np.arange(K), "penalty": lasso_fit.penalties,
                                    "n_terms": lasso_fit.n_terms, "metric": metric,
                                    "cv_mean": mean, "cv_se": se}))
         k = pick_steps(mean, se, larger)["min"]
         value = -mean[k] if larger else mean[k]
         if best is None or value < best[0]:
-            best = (value, relax, mean, se)
-    _, relax, mean, se = best
+            best = (value, relaxation, mean, se)
+    _, relaxation, mean, se = best
     base = np.arange(problem.n) if rows is None else rows
     picks, models = [], {}
     for rule, k in pick_steps(mean, se, larger).items():
         b0_refit, b_refit = refit(problem, base, np.flatnonzero(lasso_fit.coef[k]))
-        models[rule] = (relax * lasso_fit.intercept[k] + (1 - relax) * b0_refit,
-                        relax * lasso_fit.coef[k] + (1 - relax) * b_refit)
-        picks.append({"rule": rule, "relax": relax, "step": k, "penalty": lasso_fit.penalties[k],
+        models[rule] = (relaxation * lasso_fit.intercept[k] + (1 - relaxation) * b0_refit,
+                        relaxation * lasso_fit.coef[k] + (1 - relaxation) * b_refit)
+        picks.append({"rule": rule, "relaxation": relaxation, "step": k, "penalty": lasso_fit.penalties[k],
                       "n_terms": int(lasso_fit.n_terms[k]), "cv_mean": mean[k], "cv_se": se[k],
                       "terms": ";".join(selected_terms(lasso_fit, k))})
     return RelaxedResult(pd.concat(parts, ignore_index=True), pd.DataFrame(picks), models)

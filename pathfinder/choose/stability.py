@@ -71,7 +71,7 @@ import pandas as pd
 
 from ..diagnostics.collinearity import correlation_clusters, correlation_matrix
 from ..errors import InputError
-from ..defaults import CORRELATION_THRESHOLD, FOLD_TOL, N_PENALTIES, STABILITY_PAIRS, STABILITY_THRESHOLD
+from ..defaults import CORRELATION_THRESHOLD, FOLD_TOL, STABILITY_PAIRS, STABILITY_THRESHOLD
 from .problem import Problem, run_here
 
 SAMPLINGS = ("halves", "bootstrap")
@@ -427,7 +427,7 @@ class StabilityResult:
 def stability_selection(problem: Problem, *, mix=1.0, n_pairs=STABILITY_PAIRS, threshold=None, pfer=None,
                         q=None, strata=None, units=None, penalties=None, term_groups=None,
                         correlation_threshold=CORRELATION_THRESHOLD, sampling="halves",
-                        n_penalties=N_PENALTIES, penalty_ratio=None, seed, run=None,
+                        decades=None, per_decade=None, n_penalties=None, seed, run=None,
                         tol=FOLD_TOL) -> StabilityResult:
     """Stability selection with complementary pairs of halves.
 
@@ -445,7 +445,7 @@ def stability_selection(problem: Problem, *, mix=1.0, n_pairs=STABILITY_PAIRS, t
     strata : a class per site to keep balanced in every half (presence 0/1).
     units : a group or spatial-block label per site; units are never split.
     penalties : the grid (default: from the full-data path at ``mix``).
-    n_penalties, penalty_ratio : size and depth of that automatic grid.
+    decades, per_decade : depth and density of that automatic grid (see ``fit_path``).
     term_groups : a group name per term (a factor's levels share one);
         a group counts as selected when any of its terms is.
     correlation_threshold : |r| at or above which terms join one cluster.
@@ -487,8 +487,8 @@ def stability_selection(problem: Problem, *, mix=1.0, n_pairs=STABILITY_PAIRS, t
     groups = _term_groups(term_groups, names)
 
     # 1. The shared grid.
-    full = problem.fit(mix=mix, penalties=penalties, n_penalties=n_penalties,
-                       penalty_ratio=penalty_ratio)
+    full = problem.fit(mix=mix, penalties=penalties, decades=decades, per_decade=per_decade,
+                       n_penalties=n_penalties)
     grid = np.asarray(full.penalties, dtype=float)
     if penalties is None:
         grid, cut = _cut_grid(grid, full.coef[:, counted] != 0, q)

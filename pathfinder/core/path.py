@@ -17,19 +17,28 @@ scale of X (``coef``) and on the standardised scale (``coef_std``).
 
 The path
 --------
-* The grid starts at ``lam_max``, the smallest penalty at which every penalised
-  coefficient is zero, computed exactly from the gradient at the model holding
-  only the intercept and the unpenalised terms. For ``mix < 0.001`` (ridge and
-  near-ridge) the grid is anchored at the ``lam_max`` of ``mix = 0.001``, since a
-  pure ridge penalty never sets a coefficient to zero.
-* It runs down to ``penalty_ratio * lam_max`` (default 1e-4 when n > p, else
-  1e-2), log-spaced, each fit warm-started from the previous one.
-* It stops early, on the automatic grid only, once at least five penalties are
-  fitted and the deviance explained rises by less than 1e-5 of itself from one
-  penalty to the next; on any grid it stops when the deviance explained
-  exceeds 0.999 (a saturated fit: for presence/absence data this means the
-  classes are separated and the coefficients would run off to infinity), and
-  says so in a warning.
+* Where it starts. With a lasso part (``mix > 0``) the grid starts at
+  ``lam_max``, the smallest penalty at which every penalised coefficient is
+  zero, computed exactly from the gradient at the model holding only the
+  intercept and the unpenalised terms. A ridge penalty never sets a
+  coefficient to zero, so for ridge, and for elastic nets whose ``lam_max``
+  lies further out, the grid starts instead where the model has at most one
+  effective degree of freedom: the ridge part alone then allows
+  ``df = tr[G (G + lam (1 - mix) V)^-1] <= tr(V^-1 G) / (lam (1 - mix)) <= 1``,
+  with ``G`` the weighted cross-products of the terms at the intercept-only
+  fit and ``V`` the penalty weights (our rule: a model worth one parameter is
+  where a reader starts to see effects).
+* How far it runs: ``decades`` powers of ten below its start (default 3.5,
+  or 2 when there are at least as many terms as rows), log-spaced with
+  ``per_decade`` penalties in each power of ten (default 20), each fit
+  warm-started from the previous one.
+* Where it may stop early, on the automatic grid only: once at least
+  ``MIN_STEPS_BEFORE_STOP`` penalties are fitted and the deviance left
+  unexplained shrank by less than ``SMALL_CHANGE`` (0.01%) of itself over the
+  last ``CHANGE_SPAN`` penalties. On any grid it stops when the deviance
+  explained exceeds ``SATURATED`` (a saturated fit: for presence/absence data
+  the classes are separated and the coefficients would run off to infinity),
+  and says so in a warning.
 * The solver (see :mod:`pathfinder.core.solvers`): Gram-matrix coordinate
   descent for Gaussian responses with n > p; for binomial and Poisson
   responses, Newton steps on a sampled Gram matrix on long tables
@@ -48,15 +57,16 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from ..defaults import GRID_DECADES, GRID_DECADES_WIDE, GRID_PER_DECADE, MAX_SWEEPS, TOL
 from ..errors import FitWarning, InputError
 from .families import get_family
 from .solvers import (GramSolver, NaiveSolver, NewtonGramSolver, blas_threads, column_scales,
                       standardised_copy, weighted_mean)
 
-MIX_FLOOR = 1e-3          # mix used for lam_max when mix is (near) 0
-SMALL_CHANGE = 1e-5       # early stop: relative rise in deviance explained
-SATURATED = 0.999         # early stop: deviance explained
-MIN_STEPS_BEFORE_STOP = 5
+SMALL_CHANGE = 1e-4       # early stop: share by which the unexplained deviance shrank ...
+CHANGE_SPAN = 3           # ... over this many penalties
+MIN_STEPS_BEFORE_STOP = 10
+SATURATED = 0.9995        # stop: deviance explained (under 0.05% of the null deviance left)
 GRAM_MAX_TERMS = 500      # Gaussian uses the Gram matrix when n > p and p <= this
 LONG_TABLE_ROWS = 2_000   # binomial / Poisson use Newton-Gram steps from this many rows ...
 LONG_TABLE_RATIO = 20     # ... when there are also at least this many rows per column
@@ -77,7 +87,7 @@ class PathResult:
     coef_std: np.ndarray
     deviance: np.ndarray
     null_deviance: float
-    deviance_ratio: np.ndarray
+    deviance_explained: np.ndarray
     n_terms: np.ndarray
     n_iter: np.ndarray
     kkt_violation: np.ndarray
@@ -109,7 +119,7 @@ class PathResult:
             "penalty": self.penalties,
             "n_terms": self.n_terms,
             "deviance": self.deviance,
-            "deviance_ratio": self.deviance_ratio,
+            "deviance_explained": self.deviance_explained,
             "intercept": self.intercept,
         })
 
@@ -266,30 +276,56 @@ def largest_penalty(grad, v, mix, penalised) -> float:
     """The smallest penalty at which every penalised coefficient is zero, exactly.
 
     From the gradient at the model of the intercept and the always-kept terms:
-    ``max_j |g_j| / (mix v_j)``; for (near-)ridge mixes the lasso-like mix
-    ``MIX_FLOOR`` anchors it, since a ridge penalty never zeroes a term.
+    ``max_j |g_j| / (mix v_j)``; infinite for pure ridge (``mix = 0``), whose
+    coefficients are never exactly zero.
     """
-    return float(np.max(np.abs(grad[penalised]) / (max(mix, MIX_FLOOR) * v[penalised])))
+    if mix <= 0:
+        return np.inf
+    return float(np.max(np.abs(grad[penalised]) / (mix * v[penalised])))
 
 
-def penalty_grid(lam_max, mix, penalties, n_penalties, penalty_ratio, n, p):
-    """``(grid, automatic, lam_zero)``: the penalties to fit in decreasing order.
+def one_df_penalty(mean_weight, v, mix, penalised) -> float:
+    """The penalty from which the ridge part alone leaves at most one degree of freedom.
 
-    ``lam_zero`` is the penalty from which every penalised coefficient is
-    zero for this mix (infinite for pure ridge).
+    For standardised terms at the intercept-only fit ``G_jj`` is the mean
+    working weight, so ``tr(V^-1 G) = mean_weight * sum_j 1 / v_j`` over the
+    penalised terms; dividing by ``1 - mix`` gives the penalty (infinite for
+    the lasso, which needs no such start).
     """
-    lam_zero = lam_max if mix >= MIX_FLOOR else (lam_max * MIX_FLOOR / mix if mix > 0 else np.inf)
+    if mix >= 1:
+        return np.inf
+    return float(mean_weight * np.sum(1.0 / v[penalised]) / (1.0 - mix))
+
+
+def penalty_grid(start, penalties, decades, per_decade, n, p, n_penalties=None):
+    """``(grid, automatic)``: the penalties to fit, in decreasing order.
+
+    The automatic grid runs from ``start`` down ``decades`` powers of ten
+    with ``per_decade`` penalties in each (see the module notes), or
+    ``n_penalties`` in all when that is given.
+    """
     if penalties is not None:
         grid = np.sort(np.asarray(penalties, dtype=float).ravel())[::-1]
         if grid.size == 0 or np.any(grid < 0) or not np.all(np.isfinite(grid)):
             raise InputError("penalties must be finite and non-negative")
-        return grid, False, lam_zero
-    ratio = penalty_ratio if penalty_ratio is not None else (1e-4 if n > p else 1e-2)
-    if not 0 < ratio < 1:
-        raise InputError("penalty_ratio must lie strictly between 0 and 1")
-    if lam_max <= 0:
+        return grid, False
+    decades = (GRID_DECADES if n > p else GRID_DECADES_WIDE) if decades is None else float(decades)
+    per_decade = GRID_PER_DECADE if per_decade is None else per_decade
+    if not 0 < decades <= 12:
+        raise InputError(f"the grid depth must lie between 0 and 12 decades (powers of ten), "
+                         f"got {decades}")
+    if isinstance(per_decade, bool) or int(per_decade) != per_decade or per_decade < 1:
+        raise InputError(f"the penalties per decade must be a whole number of at least 1, "
+                         f"got {per_decade}")
+    if not 0 < start < np.inf:
         raise InputError("no predictor is related to the response at all (every gradient is 0)")
-    return lam_max * np.logspace(0, np.log10(ratio), int(n_penalties)), True, lam_zero
+    count = int(round(decades * int(per_decade))) + 1
+    if n_penalties is not None:
+        if isinstance(n_penalties, bool) or int(n_penalties) != n_penalties or n_penalties < 2:
+            raise InputError(f"the number of penalties must be a whole number of at least 2, "
+                             f"got {n_penalties}")
+        count = int(n_penalties)
+    return start * np.logspace(0, -decades, count), True
 
 
 def strong_set(grad, v, mix, lam, lam_prev, usable):
@@ -327,22 +363,24 @@ def stop_here(family, dev_explained, k, automatic, lam, last_index):
     """``(reason, message)`` when the path should stop after step ``k``, else ``(None, None)``.
 
     On any grid: deviance explained above ``SATURATED``; on the automatic grid
-    only, after ``MIN_STEPS_BEFORE_STOP`` penalties, a rise in deviance
-    explained below ``SMALL_CHANGE`` of itself.
+    only, after ``MIN_STEPS_BEFORE_STOP`` penalties, an unexplained deviance
+    that shrank by less than ``SMALL_CHANGE`` of itself over the last
+    ``CHANGE_SPAN`` penalties.
     """
     now = dev_explained[-1]
     if now > SATURATED:
-        return "deviance explained above 0.999", (family.saturation_message(lam)
-                                                  if k < last_index else None)
-    if automatic and k + 1 >= MIN_STEPS_BEFORE_STOP:
-        if now - dev_explained[-2] < SMALL_CHANGE * abs(now):
+        return (f"deviance explained above {SATURATED}",
+                family.saturation_message(lam) if k < last_index else None)
+    if automatic and k + 1 >= max(MIN_STEPS_BEFORE_STOP, CHANGE_SPAN + 1):
+        left, before = 1.0 - now, 1.0 - dev_explained[-1 - CHANGE_SPAN]
+        if before - left < SMALL_CHANGE * left:
             return "deviance explained stopped changing", None
     return None, None
 
 
-def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=100,
-             penalty_ratio=None, term_weights=None, offset=None, weights=None,
-             standardize=True, tol=1e-7, max_sweeps=100_000, rows=None,
+def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, decades=None, per_decade=None,
+             n_penalties=None, term_weights=None, offset=None, weights=None,
+             standardize=True, tol=TOL, max_sweeps=MAX_SWEEPS, rows=None,
              names=None, cross_products=None) -> PathResult:
     """Fit a lasso / elastic-net / ridge path of a Gaussian, binomial or Poisson GLM.
 
@@ -358,7 +396,10 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
     mix : 1 is the lasso, 0 ridge, in between the elastic net (Zou & Hastie 2005).
     penalties : a grid of penalties to use instead of the automatic one
         (sorted into decreasing order).
-    n_penalties, penalty_ratio : size and depth of the automatic grid.
+    decades : depth of the automatic grid, in powers of ten below its start
+        (default 3.5, or 2 when terms are at least as many as rows).
+    per_decade : penalties in each power of ten of the automatic grid (default 20).
+    n_penalties : instead of ``per_decade``, the number of penalties over the whole depth.
     term_weights : per-term penalty weights ``v_j >= 0`` (0 = always kept).
     offset : added to the linear predictor (log survey effort for counts).
     weights : observation weights ``>= 0``, rescaled to sum to n.
@@ -409,14 +450,19 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
         if not ok:
             issues.append("the model with only the always-kept terms did not converge")
     grad = solver.gradient().copy()
-    lam_max = largest_penalty(grad, v, mix, penalised)
-    grid, automatic, lam_zero = penalty_grid(lam_max, mix, penalties, n_penalties, penalty_ratio,
-                                             n, p)
+    lam_zero = largest_penalty(grad, v, mix, penalised)
+    ridge_start = np.inf
+    if mix < 1:
+        null_eta = fam.null_intercept(data.y, data.w, data.offset) + data.offset
+        ridge_start = one_df_penalty(float(np.mean(fam.working_weights(null_eta, data.w))), v, mix,
+                                     penalised)
+    grid, automatic = penalty_grid(min(lam_zero, ridge_start), penalties, decades, per_decade, n, p,
+                                   n_penalties)
 
     out = {k: [] for k in ("b0", "beta", "dev", "iters", "kkt", "refits", "explained")}
     ever_active = np.zeros(p, dtype=bool)
     ever_active[unpenalised] = True
-    lam_prev = max(lam_max, grid[0])
+    lam_prev = grid[0] if not np.isfinite(lam_zero) else max(lam_zero, grid[0])
     unconverged = []
     stop_reason = "end of grid"
     for k, lam in enumerate(grid):
@@ -459,7 +505,7 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, n_penalties=10
         family=fam.name, mix=mix, names=data.names, penalties=grid[: len(deviance)].copy(),
         intercept=intercept, coef=coef, intercept_std=intercept_std, coef_std=coef_std,
         deviance=deviance, null_deviance=float(null_dev),
-        deviance_ratio=1 - deviance / null_dev, n_terms=(coef_std != 0).sum(axis=1),
+        deviance_explained=1 - deviance / null_dev, n_terms=(coef_std != 0).sum(axis=1),
         n_iter=np.array(out["iters"]), kkt_violation=np.array(out["kkt"]),
         kkt_refits=np.array(out["refits"]), center=mean, scale=scale, term_weights=v,
         n_obs=n, standardize=bool(standardize), stop_reason=stop_reason, warnings=tuple(issues),

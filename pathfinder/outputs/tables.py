@@ -26,7 +26,7 @@ def path_table(fits: dict) -> pd.DataFrame:
     """One row per fitted penalty: method, mix, step, penalty, n_terms, deviance, deviance_explained."""
     parts = []
     for (method, mix), fit in fits.items():
-        summary = fit.summary_frame().rename(columns={"deviance_ratio": "deviance_explained"})
+        summary = fit.summary_frame()
         summary.insert(0, "mix", mix)
         summary.insert(0, "method", method)
         parts.append(summary)
@@ -37,7 +37,7 @@ def _with_relaxed(frame: pd.DataFrame, relaxed_part, method_name) -> pd.DataFram
     """Name each row's method from its mix; append the relaxed lasso's rows (mix 1) after them."""
     out = frame.copy()
     out.insert(0, "method", [method_name(m) for m in out["mix"]])
-    out["relax"] = np.nan
+    out["relaxation"] = np.nan
     if relaxed_part is None:
         return out
     extra = relaxed_part.copy()
@@ -48,7 +48,7 @@ def _with_relaxed(frame: pd.DataFrame, relaxed_part, method_name) -> pd.DataFram
 
 
 def cv_table(curves: pd.DataFrame, relaxed, method_name) -> pd.DataFrame:
-    """method, mix, step, penalty, n_terms, metric, cv_mean, cv_se, train_mean, relax.
+    """method, mix, step, penalty, n_terms, metric, cv_mean, cv_se, train_mean, relaxation.
 
     The relaxed lasso's curves (one per relaxation) follow the penalised ones.
     """
@@ -56,7 +56,7 @@ def cv_table(curves: pd.DataFrame, relaxed, method_name) -> pd.DataFrame:
 
 
 def picks_table(picks: pd.DataFrame, relaxed, method_name) -> pd.DataFrame:
-    """method, mix, rule, step, penalty, n_terms, cv_mean, cv_se, terms (and relax)."""
+    """method, mix, rule, step, penalty, n_terms, cv_mean, cv_se, terms (and relaxation)."""
     return _with_relaxed(picks, None if relaxed is None else relaxed.picks, method_name)
 
 

@@ -187,15 +187,15 @@ def truthy(values: pd.Series) -> pd.Series:
 # ---- coefficient paths -------------------------------------------------------------
 
 def coefficient_paths(coefficients: pd.DataFrame, picks: pd.DataFrame | None = None,
-                      x: str = "log_penalty", path: pd.DataFrame | None = None, *,
+                      x: str = "log_penalty", *,
                       method: str | None = None, max_steps: int = 100,
                       max_points: int = 60_000):
     """Coefficient paths, one line per term, one panel per method and mix.
 
     The y axis is the coefficient per standard deviation of its term, so terms
     in different units compare. ``x`` is ``"log_penalty"`` (the penalty on a
-    log axis, the model growing to the right) or ``"deviance_explained"``
-    (needs ``path``). Dashed and dotted rules mark the picks of ``picks``
+    log axis, the model growing to the right) or ``"n_terms"`` (the number of
+    terms in the model at each penalty). Dashed and dotted rules mark the picks of ``picks``
     (lowest CV error, one-SE rule). A slider picks a model along the path:
     its terms are drawn in colour and listed beside the chart, largest first.
     Hovering a line names the term.
@@ -206,13 +206,8 @@ def coefficient_paths(coefficients: pd.DataFrame, picks: pd.DataFrame | None = N
     """
     require(coefficients, ["method", "mix", "step", "penalty", "term", "estimate", "estimate_std"],
             "coefficients")
-    if x not in ("log_penalty", "deviance_explained"):
-        raise InputError(f"coefficient_paths: x must be 'log_penalty' or 'deviance_explained', not {x!r}")
-    if x == "deviance_explained":
-        if path is None:
-            raise InputError("coefficient_paths: x='deviance_explained' needs the path table "
-                             "(path.csv) as path=")
-        require(path, ["method", "mix", "step", "deviance_explained"], "path")
+    if x not in ("log_penalty", "n_terms"):
+        raise InputError(f"coefficient_paths: x must be 'log_penalty' or 'n_terms', not {x!r}")
     if picks is not None:
         require(picks, ["method", "mix", "rule", "step"], "picks")
     groups = [g for g in method_groups(coefficients)
@@ -222,7 +217,7 @@ def coefficient_paths(coefficients: pd.DataFrame, picks: pd.DataFrame | None = N
                          f"{', '.join(sorted(set(coefficients['method'].astype(str))))}")
     n_terms = max(1, coefficients["term"].nunique())
     limit = int(min(max_steps, max(20, max_points // (len(groups) * n_terms))))
-    panels = [_path_panel(label, name, mix, rows, picks, x, path, limit, i)
+    panels = [_path_panel(label, name, mix, rows, picks, x, limit, i)
               for i, (label, name, mix, rows) in enumerate(groups)]
     if len(panels) == 1:
         return panels[0]
@@ -238,11 +233,11 @@ def _rows_for(frame, name, mix):
     return frame[same]
 
 
-def _path_panel(label, name, mix, rows, picks, x, path, limit, index):
+def _path_panel(label, name, mix, rows, picks, x, limit, index):
     param = f"model_{index}"
     own_picks = _rows_for(picks, name, mix)
     if own_picks is not None:
-        own_picks = own_picks[own_picks.get("relax", pd.Series(np.nan, index=own_picks.index)).isna()]
+        own_picks = own_picks[own_picks.get("relaxation", pd.Series(np.nan, index=own_picks.index)).isna()]
     keep = [] if own_picks is None else own_picks["step"].astype(int).tolist()
     kept = thin_steps(rows["step"], limit, keep)
     position = {s: k for k, s in enumerate(kept)}
@@ -255,10 +250,8 @@ def _path_panel(label, name, mix, rows, picks, x, path, limit, index):
              .agg(penalty=("penalty", "first"), step=("step", "first"),
                   n_terms=("estimate", lambda v: int((v != 0).sum())))
              .reset_index())
-    if x == "deviance_explained":
-        dev = _rows_for(path, name, mix)[["step", "deviance_explained"]]
-        steps = steps.merge(dev, on="step", how="left")
-        steps["x"] = steps["deviance_explained"]
+    if x == "n_terms":
+        steps["x"] = steps["n_terms"].astype(float)
     else:
         steps["x"] = steps["penalty"]
     x_of_k = dict(zip(steps["k"], steps["x"]))
@@ -290,8 +283,8 @@ def _path_panel(label, name, mix, rows, picks, x, path, limit, index):
     if x == "log_penalty":
         x_enc = _penalty_axis(values=xs)
     else:
-        x_enc = alt.X("x:Q", axis=alt.Axis(title="share of deviance explained on all sites", format=".0%",
-                                           grid=False), scale=alt.Scale(domain=[0.0, max(x_domain[1], 1e-9)]))
+        x_enc = alt.X("x:Q", axis=alt.Axis(title="terms in the model", format="d", grid=False),
+                      scale=alt.Scale(domain=[0.0, max(x_domain[1], 1.0)]))
     ys = lines["estimate_std"].astype(float)
     low, high = min(0.0, float(ys.min())) if len(ys) else -1.0, max(0.0, float(ys.max())) if len(ys) else 1.0
     pad = 0.04 * ((high - low) or 1.0)
@@ -434,11 +427,11 @@ def _relax_name(value) -> str:
 
 
 def _cv_panel(label, rows, picks, metric, domain, max_steps):
-    relax = rows["relax"] if "relax" in rows.columns else pd.Series(np.nan, index=rows.index)
+    relaxation = rows["relaxation"] if "relaxation" in rows.columns else pd.Series(np.nan, index=rows.index)
     keep = [] if picks is None else picks["step"].astype(int).tolist()
     kept = thin_steps(rows["step"], max_steps, keep)
     rows = rows[rows["step"].isin(kept)]
-    relax = relax.loc[rows.index]
+    relaxation = relaxation.loc[rows.index]
     y = alt.Y("value:Q", scale=alt.Scale(domain=domain, zero=False),
               axis=alt.Axis(title=metric_label(metric)))
     x = _penalty_axis("penalty (log scale)", values=rows["penalty"])
@@ -446,18 +439,18 @@ def _cv_panel(label, rows, picks, metric, domain, max_steps):
                alt.Tooltip("n_terms:Q", title="terms"), alt.Tooltip("value:Q", title="mean", format=".4~g"),
                alt.Tooltip("se:Q", title="SE", format=".3~g")]
     n_terms = rows["n_terms"] if "n_terms" in rows.columns else pd.Series(np.nan, index=rows.index)
-    if relax.notna().any():
+    if relaxation.notna().any():
         long = pd.DataFrame({"x": rows["penalty"], "n_terms": n_terms, "value": rows["cv_mean"],
                              "se": rows["cv_se"], "lo": rows["cv_mean"] - rows["cv_se"],
                              "hi": rows["cv_mean"] + rows["cv_se"],
-                             "series": [_relax_name(r) for r in relax]})
+                             "series": [_relax_name(r) for r in relaxation]})
         domain_s = list(dict.fromkeys(long["series"]))
         colour = alt.Color("series:N", title="relaxation",
                            scale=alt.Scale(domain=domain_s, range=theme.cycle(len(domain_s))),
                            legend=alt.Legend(orient="right"))
         # error bars only for the relaxation the picks use
-        bar_series = ([_relax_name(r) for r in picks["relax"].dropna()]
-                      if picks is not None and "relax" in picks.columns else [])
+        bar_series = ([_relax_name(r) for r in picks["relaxation"].dropna()]
+                      if picks is not None and "relaxation" in picks.columns else [])
         bars_data = long[long["series"].isin(bar_series)] if bar_series else long.iloc[:0]
     else:
         series = [pd.DataFrame({"x": rows["penalty"], "n_terms": n_terms, "value": rows["cv_mean"],
@@ -475,7 +468,7 @@ def _cv_panel(label, rows, picks, metric, domain, max_steps):
         bars_data = long[long["series"] == domain_s[0]]
     data = inline(long)
     lines = alt.Chart(data).mark_line(strokeWidth=1.6).encode(x=x, y=y, color=colour)
-    if not relax.notna().any():
+    if not relaxation.notna().any():
         lines = lines.encode(strokeDash=alt.StrokeDash("series:N", legend=None, scale=alt.Scale(
             domain=domain_s, range=[[1, 0], [5, 3]])))
     points = alt.Chart(data).mark_circle(size=16).encode(x=x, y=y, color=colour, tooltip=tooltip)

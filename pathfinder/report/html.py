@@ -361,7 +361,7 @@ def section_paths(tables, record) -> Section:
     if coef is None:
         s.parts.append(_absent("Coefficient paths (coefficients.csv)"))
         return s
-    picks, path = tables.get("picks"), tables.get("path")
+    picks = tables.get("picks")
     try:
         groups = list(
             charts.method_groups(
@@ -385,7 +385,6 @@ def section_paths(tables, record) -> Section:
                 charts.coefficient_paths,
                 coef,
                 picks,
-                path=path,
                 method=label,
                 max_steps=min(100, budget),
             )
@@ -424,8 +423,8 @@ def section_cv(tables, record) -> Section:
         rows = []
         for _, p in picks.iterrows():
             label = charts.method_label(p["method"], p.get("mix"))
-            if "relax" in picks.columns and not charts.is_missing(p.get("relax")):
-                label += f", relaxation {float(p['relax']):g}"
+            if "relaxation" in picks.columns and not charts.is_missing(p.get("relaxation")):
+                label += f", relaxation {float(p['relaxation']):g}"
             rows.append(
                 [
                     _esc(label),
@@ -543,9 +542,11 @@ def section_compare(tables, record) -> Section:
             )
             s.parts.append(
                 _para(
-                    "Optimism: inner (cross-validated) error minus outer error, negative when the "
-                    "inner folds flattered the choice. Agreement: mean Jaccard similarity between "
-                    "the terms chosen in each outer fold and on all sites (1 = always the same).",
+                    "Optimism: the outer-fold error minus the inner (cross-validated) error that "
+                    "made the choice; for an error such as the deviance a positive value means the "
+                    "inner folds flattered the choice (for a score such as the AUC, where larger "
+                    "is better, a negative value does). Agreement: mean Jaccard similarity of the "
+                    "terms chosen in each pair of outer folds (1 = always the same terms).",
                     "note",
                 )
             )

@@ -40,7 +40,7 @@ def case_gaussian():
     grid = grid_for(Xs, y, "gaussian", 100, 1e-4)
 
     def ours():
-        cross_validate(problem, splits, n_penalties=100, penalty_ratio=1e-4)
+        cross_validate(problem, splits, n_penalties=100, decades=4)
 
     def peer():
         LassoCV(alphas=grid, cv=splits).fit(Xs, y)
@@ -64,7 +64,7 @@ def case_binomial():
     grid = grid_for(Xs, y, "binomial", 50, 1e-4)
 
     def ours():
-        cross_validate(problem, splits, n_penalties=50, penalty_ratio=1e-4)
+        cross_validate(problem, splits, n_penalties=50, decades=4)
 
     def peer():
         LogisticRegressionCV(Cs=1 / (0.9 * n * grid), cv=splits, l1_ratios=(1.0,),

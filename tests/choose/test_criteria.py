@@ -213,7 +213,7 @@ def test_adjusted_r2_along_a_lasso_path():
     fit = fit_path(X, y, n_penalties=25)
     table = information_criteria(fit, X, y)
     n, df = len(y), table["df"].to_numpy()
-    r2 = fit.deviance_ratio
+    r2 = fit.deviance_explained
     np.testing.assert_allclose(table["deviance_explained"], r2, rtol=1e-8, atol=1e-12)
     # Common practice: adjusted R^2 = 1 - (1 - R^2)(n - 1)/(n - df - 1).
     np.testing.assert_allclose(table["adjusted_r2"], 1 - (1 - r2) * (n - 1) / (n - df - 1), rtol=1e-8, atol=1e-12)

@@ -93,3 +93,20 @@ def test_binomial_metrics_are_all_reported():
     auc = cv.curves[cv.curves.metric == "auc"]
     assert auc.cv_mean.between(0, 1).all()
     assert auc.cv_mean.iloc[-1] > 0.6   # the invented signal is real
+
+
+def test_repeated_folds_take_their_standard_error_over_fold_positions():
+    """Hastie, Tibshirani & Friedman (2009, section 7.10): SE over the K folds; repeats are
+    averaged per fold position first, so the SE does not shrink as 1/sqrt(repeats)."""
+    from pathfinder.choose.cv import fold_mean_se
+
+    rng = np.random.default_rng(5)
+    K, R = 5, 4
+    scores = rng.normal(size=(R * K, 3))              # repeat-major: repeat r, fold j at r K + j
+    mean, se = fold_mean_se(scores, repeats=R)
+    positions = scores.reshape(R, K, 3).mean(axis=0)
+    assert np.allclose(mean, scores.mean(axis=0))
+    assert np.allclose(se, positions.std(axis=0, ddof=1) / np.sqrt(K))
+    pooled = scores.std(axis=0, ddof=1) / np.sqrt(R * K)   # the rule this replaces
+    assert not np.allclose(se, pooled)
+

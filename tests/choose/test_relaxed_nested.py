@@ -9,7 +9,8 @@ from pathfinder.choose.problem import Problem
 from pathfinder.choose.folds import random_folds, stratified_folds
 from pathfinder.choose.metrics import mean_deviance
 from pathfinder.choose.nested import FoldPlan, choices, comparison_table, mean_jaccard, nested_cv
-from pathfinder.choose.relaxed import RELAX_GRID, refit, relaxed_lasso
+from pathfinder.choose.problem import refit
+from pathfinder.choose.relaxed import RELAXATIONS, relaxed_lasso
 
 from ..core.helpers import correlated_design, make_response
 
@@ -29,9 +30,9 @@ def test_relaxation_one_is_the_lasso_itself():
     splits = stratified_folds(problem.y, 5, seed=0).splits()
     cv = cross_validate(problem, splits, n_penalties=30)
     relaxed = relaxed_lasso(problem, cv.fits[1.0], splits)
-    assert set(relaxed.curves.relax) == set(RELAX_GRID)
+    assert set(relaxed.curves.relaxation) == set(RELAXATIONS)
     lasso_curve = cv.curves[cv.curves.metric == "deviance"].cv_mean.to_numpy()
-    at_one = relaxed.curves[relaxed.curves.relax == 1.0].cv_mean.to_numpy()
+    at_one = relaxed.curves[relaxed.curves.relaxation == 1.0].cv_mean.to_numpy()
     # Meinshausen (2007): relaxation 1 reproduces the lasso path exactly.
     assert np.allclose(at_one, lasso_curve, rtol=1e-6)
 
@@ -61,7 +62,7 @@ def test_relaxed_model_blends_lasso_and_refit():
     relaxed = relaxed_lasso(problem, cv.fits[1.0], splits)
     lasso = cv.fits[1.0]
     for _, pick in relaxed.picks.iterrows():
-        k, relax = int(pick.step), pick.relax
+        k, relax = int(pick.step), pick.relaxation
         b0_refit, b_refit = refit(problem, np.arange(problem.n), np.flatnonzero(lasso.coef[k]))
         b0, b = relaxed.models[pick.rule]
         assert np.allclose(b, relax * lasso.coef[k] + (1 - relax) * b_refit)
@@ -123,7 +124,7 @@ def test_best_subset_redone_inside_outer_folds_does_not_beat_the_null_on_noise()
     problem = _problem("gaussian", n=120, p=12, seed=21, signal=False)
     outer = random_folds(problem.n, 5, seed=4)
     rows = nested_cv(problem, outer.splits(), FoldPlan(k=5), seed=5, inner_k=3, mixes=(1.0,),
-                     n_penalties=20, relax=False, selectors=(SubsetSelector(budget=5_000),))
+                     n_penalties=20, relaxed_lasso=False, selectors=(SubsetSelector(budget=5_000),))
     null_scores = [mean_deviance(problem.y[test], np.full(len(test), problem.y[train].mean()), "gaussian")
                    for train, test in outer.splits()]
     for method, rule in (("best subset", "aicc"), ("best subset", "bic"), ("stepwise", "aic")):

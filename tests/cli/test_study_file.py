@@ -30,11 +30,11 @@ def _run(args, monkeypatch, where):
 
 def test_study_file_equals_command_line_and_run_record_reproduces(survey, tmp_path, monkeypatch):
     cli = ["explore", str(survey), "--response", "cover", "--exclude", "site", "--mix", "1,0.5",
-           "--folds", "4", "--no-nested", "--seed", "9", "--penalties", "30"]
+           "--folds", "4", "--no-nested", "--seed", "9", "--grid-per-decade", "9"]
     _run(cli + ["--out", "by_options"], monkeypatch, tmp_path)
     (tmp_path / "study.toml").write_text(
         f'data = "{survey.name}"\nresponse = "cover"\nexclude = ["site"]\nmixes = [1.0, 0.5]\n'
-        'folds = 4\nnested = false\nseed = 9\nn_penalties = 30\n', encoding="utf-8")
+        'folds = 4\nnested = false\nseed = 9\ngrid_per_decade = 9\n', encoding="utf-8")
     _run(["explore", "--config", "study.toml", "--out", "by_file"], monkeypatch, tmp_path)
     _run(["explore", str(survey), "--config", "by_options/run.json", "--out", "by_record"],
          monkeypatch, tmp_path)

@@ -173,8 +173,8 @@ def test_separated_presences_on_a_long_table_stop_the_path_with_a_warning():
     X = np.asfortranarray(rng.standard_normal((5_000, 4)))
     y = (X[:, 0] > 0).astype(float)            # perfectly separated by the first predictor
     with pytest.warns(FitWarning, match="separates"):
-        fit = fit_path(X, y, family="binomial", penalty_ratio=1e-6)
-    assert fit.stop_reason == "deviance explained above 0.999"
+        fit = fit_path(X, y, family="binomial", decades=6)
+    assert fit.stop_reason.startswith("deviance explained above")
     assert np.all(np.isfinite(fit.coef))
 
 

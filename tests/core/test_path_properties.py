@@ -157,24 +157,40 @@ def test_separated_presences_stop_the_path_with_a_warning():
     X = rng.standard_normal((100, 3))
     y = (X[:, 0] > 0).astype(float)  # perfectly separated by the first predictor
     with pytest.warns(FitWarning, match="separates"):
-        fit = fit_path(X, y, family="binomial", penalty_ratio=1e-6)
-    assert fit.stop_reason == "deviance explained above 0.999"
+        fit = fit_path(X, y, family="binomial", decades=6)
+    assert fit.stop_reason.startswith("deviance explained above")
     assert np.all(np.isfinite(fit.coef))
-    assert fit.deviance_ratio[-1] > 0.999
+    assert fit.deviance_explained[-1] > 0.999
 
 
-def test_default_grid_depth_depends_on_shape():
+def test_default_grid_depth_and_density_are_ours():
+    """3.5 powers of ten with 20 penalties each (2 for wide tables): pathfinder.defaults."""
     rng = np.random.default_rng(1)
     X = rng.standard_normal((30, 50))
     y = X[:, 0] + rng.standard_normal(30)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", FitWarning)
-        wide = fit_path(X, y, n_penalties=10)
+        wide = fit_path(X, y)
     X2 = rng.standard_normal((200, 5))
-    tall = fit_path(X2, X2[:, 0] + rng.standard_normal(200), n_penalties=100, penalty_ratio=None)
-    assert wide.penalties[-1] / wide.penalties[0] >= 1e-2 * (1 - 1e-9) or wide.stop_reason != "end of grid"
-    assert np.isclose(wide.penalties[1] / wide.penalties[0], 10 ** (-2 / 9))
-    assert np.isclose(tall.penalties[1] / tall.penalties[0], 10 ** (-4 / 99))
+    tall = fit_path(X2, X2[:, 0] + rng.standard_normal(200), tol=1e-10)
+    assert np.isclose(wide.penalties[1] / wide.penalties[0], 10 ** (-1 / 20))
+    assert np.isclose(tall.penalties[1] / tall.penalties[0], 10 ** (-1 / 20))
+    assert wide.penalties[-1] / wide.penalties[0] >= 10 ** -2 * (1 - 1e-9)
+    assert len(tall.penalties) == 71 or tall.stop_reason != "end of grid"
+    given = fit_path(X2, X2[:, 0] + rng.standard_normal(200), decades=1, per_decade=4)
+    assert np.allclose(given.penalties / given.penalties[0], np.logspace(0, -1, 5))
+
+
+def test_ridge_grid_starts_where_one_degree_of_freedom_is_left():
+    """Our ridge start: df = tr[G (G + lam V)^-1] at most 1, close to 1 for strong signal."""
+    rng = np.random.default_rng(4)
+    X = rng.standard_normal((300, 6))
+    y = X @ np.array([1.0, -1.0, 0.5, 0.0, 0.0, 0.3]) + rng.standard_normal(300)
+    fit = fit_path(X, y, mix=0.0)
+    Xs = (X - X.mean(0)) / X.std(0)
+    G = Xs.T @ Xs / 300
+    df = np.trace(G @ np.linalg.inv(G + fit.penalties[0] * np.eye(6)))
+    assert 0.5 < df <= 1.0
 
 
 @pytest.mark.parametrize("bad, message", [
@@ -192,7 +208,7 @@ def test_bad_arguments_are_refused(bad, message):
 def test_constant_column_never_enters():
     X, y = _data(1, "gaussian", n=60, p=4)
     X[:, 2] = 7.0
-    fit = fit_path(X, y, penalty_ratio=1e-3)
+    fit = fit_path(X, y, decades=3)
     assert np.all(fit.coef[:, 2] == 0)
     assert np.all(np.isfinite(fit.coef))
 

@@ -41,7 +41,7 @@ def small_run(folder: Path, survey: pd.DataFrame | None = None) -> Path:
     survey = invented_survey() if survey is None else survey
     options = StudyOptions(response="present", family="binomial", exclude=("site",),
                            coords=("east", "north"), folds=3, inner_folds=3, mixes=(1.0, 0.5),
-                           n_penalties=20, seed=3)
+                           grid_per_decade=6, seed=3)
     study = explore(survey, options)
     return write_study(study, folder)
 
@@ -251,7 +251,7 @@ def large_tables(n_sites: int = 10_000, n_terms: int = 200, n_steps: int = 100, 
                     "cv_mean": curve,
                     "cv_se": 0.05,
                     "train_mean": curve - np.arange(n_steps) / 300,
-                    "relax": np.nan,
+                    "relaxation": np.nan,
                 }
             )
         )
@@ -267,7 +267,7 @@ def large_tables(n_sites: int = 10_000, n_terms: int = 200, n_steps: int = 100, 
                     "cv_mean": curve[step],
                     "cv_se": 0.05,
                     "terms": ";".join(t for t, e in zip(terms, est[step]) if e != 0),
-                    "relax": np.nan,
+                    "relaxation": np.nan,
                 }
             )
     a, b = np.triu_indices(n_terms, k=1)

@@ -287,11 +287,10 @@ def all_charts(folder: Path, source: str) -> dict:
     coords = {"x_title": "east", "y_title": "north"}
     return {
         "coefficient_paths": charts.coefficient_paths(tables["coefficients"], tables["picks"]),
-        "coefficient_paths_by_deviance": charts.coefficient_paths(
+        "coefficient_paths_by_terms": charts.coefficient_paths(
             tables["coefficients"],
             tables["picks"],
-            x="deviance_explained",
-            path=tables["path"],
+            x="n_terms",
             method="lasso",
         ),
         "cv_curve": charts.cv_curve(tables["cv"], tables["picks"]),
@@ -387,10 +386,10 @@ def test_bad_tables_give_one_clear_line():
         charts.coefficient_paths(pd.DataFrame({"term": ["a"], "estimate": [1.0]}))
     message = str(error.value)
     assert "\n" not in message and "coefficients" in message and "penalty" in message
-    with pytest.raises(InputError, match="deviance_explained"):
+    with pytest.raises(InputError, match="n_terms"):
         charts.coefficient_paths(
             pd.DataFrame(columns=["method", "mix", "step", "penalty", "term", "estimate", "estimate_std"]),
-            x="deviance_explained",
+            x="share",
         )
     with pytest.raises(InputError, match="fold"):
         charts.site_map(pd.DataFrame({"x": [1.0], "y": [2.0]}), colour="fold")

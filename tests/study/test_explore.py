@@ -48,7 +48,7 @@ def _table(seed=0, n=160):
 
 
 OPTIONS = StudyOptions(response="present", coords=("x", "y"), block_size=12.0, folds=4,
-                       inner_folds=3, mixes=(1.0, 0.5), n_penalties=25, seed=7)
+                       inner_folds=3, mixes=(1.0, 0.5), grid_per_decade=7, seed=7)
 
 
 @pytest.fixture(scope="module")
@@ -113,10 +113,10 @@ def test_python_api_tables_equal_the_csv_files_and_predict_equals_the_command(tm
     from pathfinder.cli import main
     monkeypatch.chdir(tmp_path)
     _table().to_csv("t.csv", index=False)
-    study = pathfinder.explore("t.csv", response="present", folds=4, mixes=[1.0], n_penalties=20,
+    study = pathfinder.explore("t.csv", response="present", folds=4, mixes=[1.0], grid_per_decade=6,
                                nested=False, stability=False, subsets=False, seed=3)
     assert main(["explore", "t.csv", "--response", "present", "--folds", "4", "--mix", "1",
-                 "--penalties", "20", "--no-nested", "--no-stability", "--no-subsets", "--seed", "3",
+                 "--grid-per-decade", "6", "--no-nested", "--no-stability", "--no-subsets", "--seed", "3",
                  "--out", "out", "--quiet"]) == 0
     write_study(study, tmp_path / "api")
     for name in study.tables:
@@ -141,7 +141,7 @@ def test_parquet_is_read_by_the_columns_the_run_uses(tmp_path, monkeypatch):
 
     monkeypatch.setattr(study_module, "read_table", spy)
     explore(tmp_path / "t.parquet", response="present", predictors=["c0", "c1"], coords=["x", "y"],
-            folds=3, mixes=[1.0], n_penalties=10, nested=False, stability=False, subsets=False)
+            folds=3, mixes=[1.0], grid_per_decade=3, nested=False, stability=False, subsets=False)
     assert set(asked["columns"]) == {"c0", "c1", "present", "x", "y"}
 
 
@@ -154,7 +154,7 @@ def test_long_binomial_tables_get_a_smaller_default_subset_search(monkeypatch):
     monkeypatch.setattr(selectors, "SUBSET_ROW_MODELS", 160 * 37)
     assert selectors.default_subset_budget("binomial", 160) == 37
     assert selectors.default_subset_budget("gaussian", 160) == selectors.SUBSET_MODELS
-    quick = dict(response="present", folds=3, mixes=(1.0,), n_penalties=15, nested=False,
+    quick = dict(response="present", folds=3, mixes=(1.0,), grid_per_decade=4, nested=False,
                  stability=False, seed=2)
     study = explore(_table(), StudyOptions(**quick))
     assert any("limited to 37 models (subsets of up to 2 terms)" in note for note in study.notes)
