@@ -705,3 +705,65 @@ def test_parquet_saved_index_comes_back_as_a_column(tmp_path):
     assert list(frame.columns) == ["site", "temp"]
     assert frame["site"].tolist() == ["s01", "s02"]
     assert info.n_columns == 2
+
+
+# ---------------------------------------------------------------------------
+# No-data codes, suspected codes and numbers too large to compute with
+# ---------------------------------------------------------------------------
+
+
+def _elevations(code_rows=(2, 9, 15, 21), code="-9999"):
+    rng = np.random.default_rng(4)
+    rows = ["site,elevation,slope,present"]
+    for i in range(30):
+        elevation = code if i in code_rows else f"{rng.uniform(120, 1480):.1f}"
+        rows.append(f"s{i},{elevation},{rng.uniform(0, 30):.1f},{i % 2}")
+    return "\n".join(rows) + "\n"
+
+
+def test_no_data_codes_are_read_as_missing_and_counted(tmp_path):
+    path = write(tmp_path, _elevations())
+    frame, info = read_table(path, na_values=["-9999"])
+    assert frame["elevation"].isna().sum() == 4 and frame["elevation"].min() > 100
+    assert any("-9999" in note and "4 cells" in note and "elevation 4" in note for note in info.notes)
+    survey = prepare_survey(frame, response="present", exclude=["site"])
+    assert survey.n == 26 and survey.dropped_missing == {"elevation": 4}
+
+
+def test_text_codes_and_codes_written_as_decimals(tmp_path):
+    lines = _elevations(code="n.d.").splitlines()
+    site, _, slope, present = lines[5].split(",")           # data row 5: a code written -9999.0
+    lines[5] = ",".join([site, "-9999.0", slope, present])
+    frame, info = read_table(write(tmp_path, "\n".join(lines) + "\n"), na_values=["n.d.", -9999])
+    assert frame["elevation"].isna().sum() == 5
+    survey = prepare_survey(frame, response="present", exclude=["site"])
+    assert survey.frame["elevation"].min() > 100 and survey.dropped_missing == {"elevation": 5}
+
+
+def test_a_code_found_nowhere_is_said(tmp_path):
+    _, info = read_table(write(tmp_path, _elevations(code_rows=())), na_values=["-9999"])
+    assert any("no cell holds one" in note for note in info.notes)
+
+
+def test_a_repeated_far_extreme_is_flagged_as_a_suspected_code(tmp_path):
+    survey = prepare_survey(read_table(write(tmp_path, _elevations()))[0], response="present",
+                            exclude=["site"])
+    flagged = [w for w in survey.warnings if "'elevation'" in w]
+    assert len(flagged) == 1
+    assert "-9999 in 4 rows" in flagged[0] and "na_values=['-9999']" in flagged[0]
+    assert survey.n == 30          # only said: the values are still used
+
+
+def test_ordinary_extremes_are_not_flagged():
+    rng = np.random.default_rng(2)
+    counts = np.concatenate([np.zeros(20), rng.integers(1, 40, 40)])   # many zeros, then a spread
+    frame = pd.DataFrame({"y": rng.normal(size=60), "count": counts,
+                          "binary": np.tile([0, 1], 30), "x": rng.normal(size=60)})
+    survey = prepare_survey(frame, response="y")
+    assert not any("no-data" in w or "missing data" in w for w in survey.warnings)
+
+
+def test_a_number_too_large_to_compute_with_names_the_column():
+    frame = pd.DataFrame({"y": np.arange(20.0), "x": np.r_[np.arange(19.0), 1e300]})
+    message = fails(prepare_survey, frame, response="y")
+    assert "'x'" in message and "too large" in message and "data row 20 " in message
