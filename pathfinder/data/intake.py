@@ -817,6 +817,7 @@ class Survey:
     dropped_predictors: tuple
     warnings: tuple[str, ...]
     notes: tuple[str, ...]
+    fold_labels: np.ndarray | None = None   # each kept row's fold, from a fold column
 
     @property
     def n(self) -> int:
@@ -839,6 +840,7 @@ def prepare_survey(
     missing: str = "drop",
     max_levels: int = 50,
     categorical=(),
+    fold_column: str | None = None,
 ) -> Survey:
     """Check a survey table and code it for modelling.
 
@@ -853,6 +855,8 @@ def prepare_survey(
     non-negative whole numbers with more than two values, and Gaussian
     otherwise; the reason is kept in ``family_reason``. ``effort`` (positive
     numbers) becomes the offset log(effort); ``offset`` is used as given.
+    ``fold_column`` gives each site's cross-validation fold; it is never a
+    predictor, and its labels on the kept rows are ``fold_labels``.
 
     Rows missing a value in any used column are left out and counted per
     column (``missing="drop"``), or refused (``missing="refuse"``). Constant
@@ -861,7 +865,7 @@ def prepare_survey(
     """
     _check_options(frame, family, missing, max_levels)
     categorical = [categorical] if isinstance(categorical, str) else list(categorical)
-    roles = _resolve_roles(frame, response, effort, offset, weights, coords, groups)
+    roles = _resolve_roles(frame, response, effort, offset, weights, coords, groups, fold_column)
     chosen = _resolve_predictors(frame, predictors, exclude, categorical, roles)
 
     # Read every used column over the whole table.
@@ -883,6 +887,8 @@ def prepare_survey(
         missing_by_column[name] = np.isnan(coord_values[:, k])
     if groups is not None:
         missing_by_column[groups] = missing_cells(frame[groups])
+    if fold_column is not None:
+        missing_by_column[fold_column] = missing_cells(frame[fold_column])
     keep, dropped_missing, messages = _rows_to_keep(missing_by_column, len(frame), missing)
     rows = np.flatnonzero(keep)
 
@@ -954,6 +960,7 @@ def prepare_survey(
         dropped_predictors=tuple(dropped),
         warnings=tuple(messages),
         notes=tuple(notes),
+        fold_labels=None if fold_column is None else frame[fold_column].to_numpy()[keep],
     )
 
 
@@ -980,7 +987,7 @@ def _check_options(frame, family, missing, max_levels) -> None:
         )
 
 
-def _resolve_roles(frame, response, effort, offset, weights, coords, groups) -> dict:
+def _resolve_roles(frame, response, effort, offset, weights, coords, groups, fold_column=None) -> dict:
     """Check the role columns exist and do not overlap; role -> list of names."""
     if effort is not None and offset is not None:
         raise InputError(
@@ -1001,6 +1008,7 @@ def _resolve_roles(frame, response, effort, offset, weights, coords, groups) -> 
         "weights": [weights] if weights is not None else [],
         "coords": coords or [],
         "groups": [groups] if groups is not None else [],
+        "fold column": [fold_column] if fold_column is not None else [],
     }
     for role, names in roles.items():
         unknown = [name for name in names if name not in frame.columns]

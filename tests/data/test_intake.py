@@ -767,3 +767,16 @@ def test_a_number_too_large_to_compute_with_names_the_column():
     frame = pd.DataFrame({"y": np.arange(20.0), "x": np.r_[np.arange(19.0), 1e300]})
     message = fails(prepare_survey, frame, response="y")
     assert "'x'" in message and "too large" in message and "data row 20 " in message
+
+
+def test_a_fold_column_is_a_role_whose_gaps_are_counted_or_refused_by_data_row():
+    frame = pd.DataFrame({"y": np.arange(20.0), "x": np.sin(np.arange(20.0)),
+                          "fold": [1, 2, 3, 4] * 5})
+    frame["fold"] = frame["fold"].astype(object)
+    frame.loc[3, "fold"] = None
+    survey = prepare_survey(frame, response="y", fold_column="fold")
+    assert survey.predictors == ("x",)
+    assert survey.dropped_missing == {"fold": 1} and len(survey.fold_labels) == 19
+    assert survey.fold_labels.tolist() == [f for i, f in enumerate([1, 2, 3, 4] * 5) if i != 3]
+    message = fails(prepare_survey, frame, response="y", fold_column="fold", missing="refuse")
+    assert "'fold' data row 4" in message
