@@ -281,13 +281,13 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
                         "--subset-budget N searches further")
             chooser = SubsetSelector(budget=int(budget))
             selectors.append(chooser)
-        outer = None
+        outer, outer_predictions = None, {}
         if options.nested:
-            outer = stages.run("nested cross-validation", lambda tick: nested_cv(
+            outer, outer_predictions = stages.run("nested cross-validation", lambda tick: nested_cv(
                 problem, folds.splits(0), plan, seed=options.seed, inner_k=int(options.inner_folds),
                 mixes=options.mixes, metric=options.metric, decades=options.grid_decades,
-                per_decade=int(options.grid_per_decade), relaxed_lasso=options.relaxed_lasso, selectors=selectors,
-                run=runner(tick)), total=folds.n_folds)
+                per_decade=int(options.grid_per_decade), relaxed_lasso=options.relaxed_lasso,
+                selectors=selectors, run=runner(tick), keep_predictions=True), total=folds.n_folds)
         if options.subsets:   # after nested CV: its data go out once, on their own
             search, steps, made = stages.run("subset search", lambda tick: chooser.run(
                 problem, None, run=runner(tick)))
@@ -320,7 +320,7 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
         result_tables["outer_folds"] = outer
     chosen = recommend(comparison, full_choices)
     result_tables.update(stages.run("describing the chosen model", lambda _: _chosen_tables(
-        chosen, problem, survey, design, folds, cv, splits)))
+        chosen, problem, survey, design, folds, cv, splits, outer_predictions)))
     notes = tuple(survey.notes) + tuple(folds.notes) + tuple(cv.notes) + tuple(budget_notes)
     if stability is not None:
         notes += (stability.error_control,) + tuple(stability.notes)
@@ -368,7 +368,7 @@ def _criteria_parts(fits: dict, problem: Problem) -> pd.DataFrame:
     return pd.concat(parts, ignore_index=True)
 
 
-def _chosen_tables(chosen, problem, survey, design, folds, cv, splits) -> dict:
+def _chosen_tables(chosen, problem, survey, design, folds, cv, splits, outer_predictions) -> dict:
     """Tables about the suggested model and the sites: chosen, sites, curves, rug, vif."""
     fam = problem.family
     sd = design.X.std(axis=0)
@@ -379,7 +379,12 @@ def _chosen_tables(chosen, problem, survey, design, folds, cv, splits) -> dict:
     fitted = fam.inverse_link(problem.linear_predictor(
         np.array([chosen.intercept]), chosen.coef[None, :], np.arange(problem.n))[:, 0])
     grid = cv.fits[chosen.mix].penalties if chosen.mix in cv.fits else None
-    held = held_out_predictions(problem, folds.splits(0), chosen, grid)
+    # Held-out predictions: each site predicted by the model that its outer fold chose
+    # without it (the whole choice redone, as nested cross-validation graded it).
+    held = outer_predictions.get((chosen.method, chosen.rule))
+    if held is None:
+        # Without nested cross-validation: the chosen model refitted without each fold.
+        held = held_out_predictions(problem, folds.splits(0), chosen, grid)
     sites = pd.DataFrame({"row": survey.rows + 1})
     if survey.coords is not None:
         sites["x"], sites["y"] = survey.coords[:, 0], survey.coords[:, 1]

@@ -21,12 +21,14 @@ and the results do not depend on how many workers ran them.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
 from ..defaults import FOLD_TOL
+from ..errors import InputError
 from .metrics import METRICS, score
 from .problem import Problem, run_here
 
@@ -75,9 +77,16 @@ def score_path(problem: Problem, fit, rows, metrics, *, null_rows=None):
                             np.zeros(len(train)) if off_train is None else off_train)
         off = problem.part(problem.offset, rows)
         mu_null = fam.inverse_link(b0 + (np.zeros(len(rows)) if off is None else off))
-    for metric in metrics:
-        out[metric] = np.array([score(metric, y, mu[:, k], fam, w, mu_null)
-                                for k in range(mu.shape[1])])
+    for i, metric in enumerate(metrics):
+        try:
+            out[metric] = np.array([score(metric, y, mu[:, k], fam, w, mu_null)
+                                    for k in range(mu.shape[1])])
+        except InputError:
+            if i == 0:          # the metric that picks the penalty must hold on every fold
+                raise
+            # A secondary metric undefined on this fold (the AUC of a fold without
+            # presences) gets no value here; the other folds are pooled.
+            out[metric] = np.full(mu.shape[1], np.nan)
     return out
 
 
@@ -128,11 +137,13 @@ def fold_mean_se(scores, repeats=1) -> tuple[np.ndarray, np.ndarray]:
     of this variance exists, so this one is a working convention).
     """
     scores = np.asarray(scores, dtype=float)
-    if repeats > 1 and scores.shape[0] % repeats == 0:
-        scores = scores.reshape(repeats, scores.shape[0] // repeats, -1).mean(axis=0)
-    count = scores.shape[0]
-    mean = scores.mean(axis=0)
-    se = scores.std(axis=0, ddof=1) / np.sqrt(count) if count > 1 else np.zeros(scores.shape[1])
+    with warnings.catch_warnings(), np.errstate(invalid="ignore", divide="ignore"):
+        warnings.simplefilter("ignore", RuntimeWarning)      # a metric undefined on every fold
+        if repeats > 1 and scores.shape[0] % repeats == 0:
+            scores = np.nanmean(scores.reshape(repeats, scores.shape[0] // repeats, -1), axis=0)
+        count = np.count_nonzero(~np.isnan(scores), axis=0)     # folds where the metric is defined
+        mean = np.nanmean(scores, axis=0)
+        se = np.where(count > 1, np.nanstd(scores, axis=0, ddof=1) / np.sqrt(count), 0.0)
     return mean, se
 
 

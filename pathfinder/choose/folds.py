@@ -657,6 +657,14 @@ def make_folds(
         def make(seed):
             return grouped_folds(groups, k, seed=seed, y=present)
     elif binary:
+        rarest = int(min(np.count_nonzero(present > 0), np.count_nonzero(present == 0)))
+        if 2 <= rarest < k:
+            scarce = "presences" if np.count_nonzero(present > 0) == rarest else "absences"
+            extra += (f"there are only {rarest} {scarce} for {k} folds, so {rarest} folds are "
+                      f"used and every fold holds at least one; more {scarce} give a steadier "
+                      "skill estimate",)
+            k = rarest
+
         def make(seed):
             return stratified_folds(present.astype(np.int64), k, seed=seed)
     else:

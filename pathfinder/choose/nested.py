@@ -116,11 +116,12 @@ def run_outer_fold(problem: Problem, task: OuterTask) -> list[dict]:
         made += selector.choose(problem, task.train, task.seed)
     for choice in made:
         eta = problem.linear_predictor(np.array([choice.intercept]), choice.coef[None, :], task.test)
-        outer = score(task.metric, y, fam.inverse_link(eta[:, 0]), fam, w)
+        mu = fam.inverse_link(eta[:, 0])
+        outer = score(task.metric, y, mu, fam, w)
         rows.append({"fold": task.fold, "method": choice.method, "rule": choice.rule,
                      "mix": choice.mix, "penalty": choice.penalty, "n_terms": len(choice.terms),
                      "terms": ";".join(choice.terms), "inner_score": choice.inner_score,
-                     "outer_score": outer})
+                     "outer_score": outer, "held_out": mu})
     return rows
 
 
@@ -134,11 +135,14 @@ def _all_splits(folds):
 def nested_cv(problem: Problem, outer_splits, plan: FoldPlan, *, seed, inner_k=INNER_FOLDS, mixes=(1.0,),
               metric=METRIC, decades=None, per_decade=GRID_PER_DECADE, n_penalties=None, relaxed_lasso=True,
               selectors=(),
-              run=None) -> pd.DataFrame:
+              run=None, keep_predictions=False):
     """Outer-fold scores of every method and rule: one row per (outer fold, method, rule).
 
     Each outer fold gets its own seed for its inner folds (spawned from
     ``seed``), so the result does not depend on where the folds ran.
+    With ``keep_predictions`` it also returns each method's held-out
+    predictions, ``{(method, rule): (n,) array}``: every site predicted by the
+    model its outer fold chose without it (NaN for sites in no outer fold).
     ``selectors`` (see :mod:`pathfinder.choose.selectors`) add methods that
     are not a penalty pick, each redone on every outer training set. Inside
     the outer folds the paths use at most NESTED_PER_DECADE penalties per decade and converge to FOLD_TOL:
@@ -150,7 +154,16 @@ def nested_cv(problem: Problem, outer_splits, plan: FoldPlan, *, seed, inner_k=I
                        tuple(selectors))
              for k, (train, test) in enumerate(outer_splits)]
     results = (run or run_here)(run_outer_fold, tasks, problem)
-    return pd.DataFrame([row for rows in results for row in rows])
+    table = pd.DataFrame([{k: v for k, v in row.items() if k != "held_out"}
+                          for rows in results for row in rows])
+    if not keep_predictions:
+        return table
+    predictions = {}
+    for task, rows in zip(tasks, results):
+        for row in rows:
+            key = (row["method"], row["rule"])
+            predictions.setdefault(key, np.full(problem.n, np.nan))[task.test] = row["held_out"]
+    return table, predictions
 
 
 def mean_jaccard(term_sets) -> float:

@@ -467,7 +467,9 @@ def section_stability(tables, record) -> Section:
             bits.append(f"on average {_num(info['q'], 4)} terms chosen per subsample")
         if info.get("pfer_bound") is not None:
             bits.append(
-                f"expected number of wrongly chosen terms (PFER) at most {_num(info['pfer_bound'], 3)}"
+                f"expected number of wrongly chosen terms (PFER) at most {_num(info['pfer_bound'], 3)}, "
+                "among the terms a half-sample selects with probability at most q/p (the "
+                "condition under which the bound holds)"
             )
         if info.get("n_pairs") is not None:
             bits.append(f"{_num(info['n_pairs'], 6)} complementary pairs of half-samples")
@@ -655,6 +657,11 @@ def section_chosen(tables, record) -> Section:
                     rows,
                 )
             )
+            if freq:
+                s.parts.append(_para(
+                    "The share of subsamples comes from stability selection, which looks only at the "
+                    "strongest penalties, where about q terms enter each half-sample; a term the "
+                    "chosen model keeps may never enter there and then shows 0%.", "note"))
     curves = tables.get("response_curves")
     if curves is None:
         s.parts.append(_absent("Response curves (response_curves.csv)"))

@@ -110,3 +110,21 @@ def test_repeated_folds_take_their_standard_error_over_fold_positions():
     pooled = scores.std(axis=0, ddof=1) / np.sqrt(R * K)   # the rule this replaces
     assert not np.allclose(se, pooled)
 
+
+
+def test_a_secondary_metric_undefined_on_a_fold_never_stops_the_run():
+    """The AUC of a fold without presences is undefined (Mann-Whitney form); that fold gets
+    no AUC and the other folds are pooled, while the deviance picks the penalty."""
+    rng = np.random.default_rng(8)
+    X = rng.standard_normal((120, 4))
+    y = np.zeros(120)
+    y[:12] = 1
+    problem = Problem(X, y, "binomial", tuple(f"x{j}" for j in range(4)))
+    fold = np.arange(120) % 4
+    fold[:12] = np.arange(12) % 3             # fold 3 holds no presence
+    splits = [(np.flatnonzero(fold != k), np.flatnonzero(fold == k)) for k in range(4)]
+    cv = cross_validate(problem, splits, metrics=("deviance", "auc"), n_penalties=8)
+    auc = cv.curves[cv.curves.metric == "auc"]
+    assert np.isfinite(auc.cv_mean).all()
+    with pytest.raises(Exception, match="no presences"):
+        cross_validate(problem, splits, metrics=("auc",), primary="auc", n_penalties=8)

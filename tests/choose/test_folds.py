@@ -582,3 +582,16 @@ def test_make_folds_passes_the_block_advice_on():
     no_blocks = make_folds(300, k=5, y=y, coords=xy, seed=2)
     assert no_blocks.scheme == "stratified"
     assert any("without a block size" in note for note in no_blocks.notes)
+
+
+def test_fewer_presences_than_folds_reduce_the_folds_and_say_so():
+    """A rare species (9 presences in 200 sites): every fold must hold a presence (common
+    practice for stratified cross-validation of presence/absence data)."""
+    from pathfinder.choose.folds import make_folds
+
+    y = np.zeros(200)
+    y[:9] = 1
+    folds = make_folds(200, k=10, y=y, family="binomial", seed=3)
+    assert folds.n_folds == 9
+    assert all(y[test].sum() >= 1 for _, test in folds.splits())
+    assert any("only 9 presences" in note for note in folds.notes)

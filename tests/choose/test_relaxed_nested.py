@@ -131,3 +131,22 @@ def test_best_subset_redone_inside_outer_folds_does_not_beat_the_null_on_noise()
         mine = rows[(rows.method == method) & (rows.rule == rule)].outer_score
         se = mine.std(ddof=1) / np.sqrt(len(mine))
         assert mine.mean() >= np.mean(null_scores) - 2 * se, (method, rule)
+
+
+def test_held_out_predictions_come_from_each_outer_folds_own_choice():
+    """Each site's held-out prediction is the model its outer fold chose without it; the
+    outer score of that fold is the metric of those very predictions (a consistency check
+    against pathfinder.choose.metrics.mean_deviance, itself checked against statsmodels)."""
+    from pathfinder.choose.selectors import SubsetSelector
+    problem = _problem("gaussian", n=90, p=6, seed=2)
+    outer = random_folds(problem.n, 3, seed=1)
+    rows, predictions = nested_cv(problem, outer.splits(), FoldPlan(k=3), seed=5, inner_k=3,
+                                  mixes=(1.0,), n_penalties=12, relaxed_lasso=False,
+                                  selectors=(SubsetSelector(budget=100),), keep_predictions=True)
+    assert set(predictions) == set(zip(rows.method, rows.rule))
+    for (method, rule), held in predictions.items():
+        assert np.isfinite(held).all()
+        for k, (_, test) in enumerate(outer.splits()):
+            score = rows[(rows.method == method) & (rows.rule == rule) & (rows.fold == k)].outer_score
+            assert float(score.iloc[0]) == pytest.approx(
+                mean_deviance(problem.y[test], held[test], "gaussian"), rel=1e-12)
