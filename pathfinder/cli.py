@@ -231,7 +231,7 @@ def _options_from(args):
 
     from .study import StudyOptions
     from .study_file import read_study_file
-    settings = read_study_file(args.config) if args.config else {}
+    settings = read_study_file(args.config, data_given=args.data is not None) if args.config else {}
     names = [f.name for f in fields(StudyOptions)]
     for name in names:
         value = getattr(args, name, None)

@@ -66,15 +66,19 @@ def _kinds() -> dict:
     return kinds
 
 
-def read_study_file(path) -> dict:
-    """The settings of a TOML study file or a run.json, checked key by key."""
+def read_study_file(path, *, data_given: bool = False) -> dict:
+    """The settings of a TOML study file or a run.json, checked key by key.
+
+    With ``data_given`` (the caller names the table itself) a run.json's
+    recorded table is not looked for.
+    """
     path = Path(path).expanduser()
     if not path.is_file():
         raise InputError(f"the study file {path} does not exist or is not a file")
     try:
         text = path.read_text(encoding="utf-8")
         if path.suffix.lower() == ".json":
-            settings = _from_run_record(json.loads(text), path)
+            settings = _from_run_record(json.loads(text), path, data_given)
         else:
             settings = tomllib.loads(text)
             if isinstance(settings.get("data"), str):
@@ -100,13 +104,13 @@ def _beside(study_file: Path, name: str) -> Path:
     return given if given.is_absolute() else study_file.parent / given
 
 
-def _from_run_record(record, path: Path) -> dict:
+def _from_run_record(record, path: Path, data_given: bool) -> dict:
     if not isinstance(record, dict):
         return record
     if "options" not in record:
         return record            # a JSON study file: the settings themselves
     settings = dict(record["options"])
-    table = _recorded_table(record.get("input"), path)
+    table = None if data_given else _recorded_table(record.get("input"), path)
     if table is not None:
         settings["data"] = table
     figures = (record.get("output") or {}).get("figures")

@@ -117,3 +117,19 @@ def test_run_json_refuses_a_table_that_changed_since(survey, tmp_path):
     assert again.returncode == 2
     message = the_one_line(again.stderr)
     assert "survey.csv" in message and "changed" in message and "DATA" in message
+
+
+def test_a_table_given_as_data_overrides_the_recorded_one(survey, tmp_path):
+    first = run_cli(["explore", survey.name, "--response", "cover", "--exclude", "site",
+                     "--mix", "1", "--folds", "3", "--no-nested", "--no-stability", "--no-subsets",
+                     "--out", "first", "--quiet"], cwd=tmp_path)
+    assert first.returncode == 0, first.stderr
+    moved = tmp_path / "moved.csv"
+    survey.rename(moved)
+    again = run_cli(["explore", "moved.csv", "--config", "first/run.json", "--out", "again",
+                     "--quiet"], cwd=tmp_path)
+    assert again.returncode == 0, again.stderr
+    assert ((tmp_path / "first" / "coefficients.csv").read_bytes()
+            == (tmp_path / "again" / "coefficients.csv").read_bytes())
+    gone = run_cli(["explore", "--config", "first/run.json", "--out", "third"], cwd=tmp_path)
+    assert gone.returncode == 2 and "give the table as DATA" in the_one_line(gone.stderr)
