@@ -581,6 +581,9 @@ def missing_cells(series: pd.Series) -> np.ndarray:
     """True where a cell is missing: NA/NaN/None, or text that is blank or 'nan'."""
     if pd.api.types.is_bool_dtype(series) or pd.api.types.is_numeric_dtype(series):
         return series.isna().to_numpy(dtype=bool)
+    if isinstance(series.dtype, pd.StringDtype):   # text columns as read: one vectorised pass
+        blank = series.str.strip().str.lower().isin(["", "nan"]).to_numpy(dtype=bool)
+        return series.isna().to_numpy(dtype=bool) | blank
     values = series.to_numpy(dtype=object)
     missing = np.asarray(pd.isna(values), dtype=bool)
     for i in np.flatnonzero(~missing):
