@@ -39,8 +39,8 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from scipy.special import expit
 
-from .core.families import get_family
 from .data.design import Term, apply_design
 from .data.intake import PARQUET_SUFFIXES, as_labels, describe_values, parse_numbers, read_table
 from .diagnostics.extrapolation import mess, outside_range
@@ -49,7 +49,9 @@ from .outputs.folder import os_error_line
 from .outputs.model_file import check_document, load_model_document, write_atomically
 
 KINDS = ("response", "link", "both")
-LARGEST_LOG = float(np.log(np.finfo(np.float64).max))
+# The inverse of each link a model file may record, exactly as written: no cap, so a
+# linear predictor too large for a number is found and said, never clipped.
+INVERSE_LINKS = {"identity": lambda eta: eta, "logit": expit, "log": np.exp}
 FLAG_COLUMNS = ("n_outside_range", "most_extreme_predictor", "distance_outside", "mess",
                 "most_dissimilar_predictor", "novel", "reason")
 
@@ -62,6 +64,7 @@ class Model:
         self.document = document
         self.source = source
         self.family = document["family"]
+        self.inverse_link = INVERSE_LINKS[document["link"]]
         self.response_name = document["response"]["name"]
         self.intercept = float(document["intercept"])
         self.offset_rule = document["offset"]
@@ -124,9 +127,7 @@ class Model:
         unusable = np.array([bool(r) for r in reasons], dtype=bool)
         eta[unusable] = np.nan
         with np.errstate(over="ignore", invalid="ignore"):
-            mean = get_family(self.family).inverse_link(eta)
-            if self.family == "poisson":    # a mean beyond the largest number there is
-                mean = np.where(eta > LARGEST_LOG, np.inf, mean)
+            mean = self.inverse_link(eta)
         _explain_overflow(eta, mean, X, coef, terms, clean, reasons)
         eta[~np.isfinite(mean)] = np.nan
         mean = np.where(np.isfinite(mean), mean, np.nan)
