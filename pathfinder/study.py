@@ -31,6 +31,7 @@ from .choose.problem import Problem, method_name
 from .choose.nested import FoldPlan, choices, comparison_table, held_out_predictions, nested_cv, recommend
 from .choose.folds import block_of
 from .choose.relaxed import relaxed_lasso
+from .choose.skill import held_out_skill
 from .choose.selectors import (StabilitySelector, SubsetSelector,
                                default_subset_budget, largest_search_size)
 from .choose.subsets import model_average, variable_importance
@@ -361,7 +362,7 @@ def _criteria_parts(fits: dict, problem: Problem) -> pd.DataFrame:
     parts = []
     for mix, fit in fits.items():
         frame = information_criteria(fit, problem.X, problem.y, weights=problem.weights,
-                                     offset=problem.offset)
+                                     offset=problem.offset, count_variance=True)
         frame.insert(0, "mix", mix)
         frame.insert(0, "method", method_name(mix))
         parts.append(frame)
@@ -400,4 +401,8 @@ def _chosen_tables(chosen, problem, survey, design, folds, cv, splits, outer_pre
                         "cluster": correlation_clusters(R)})
     chosen_table.insert(0, "method", chosen.method)
     chosen_table.insert(1, "rule", chosen.rule)
-    return {"chosen": chosen_table, "sites": sites, "response_curves": curves, "rug": rug, "vif": vif}
+    skill = held_out_skill(problem, held, folds.splits(0), scheme=folds.scheme)
+    skill.insert(0, "method", chosen.method)
+    skill.insert(1, "rule", chosen.rule)
+    return {"chosen": chosen_table, "sites": sites, "response_curves": curves, "rug": rug, "vif": vif,
+            "skill": skill}

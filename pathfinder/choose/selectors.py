@@ -92,12 +92,13 @@ class SubsetSelector:
         out, search = [], None
         size = self.max_size(problem.X.shape[1])
         if size >= 1:
-            search = best_subsets(problem, max_size=size, rows=base, max_models=self.budget, run=run)
+            search = best_subsets(problem, max_size=size, rows=base, max_models=self.budget, run=run,
+                                  count_variance=True)
             for criterion in ("aicc", "bic"):
                 b0, b, _ = search.best(criterion)
                 out.append(Choice(BEST_SUBSET, criterion, float("nan"), float("nan"), b0, b,
                                   float("nan"), problem.names))
-        steps = stepwise(problem, direction="both", criterion="aic", rows=base)
+        steps = stepwise(problem, direction="both", criterion="aic", rows=base, count_variance=True)
         out.append(Choice(STEPWISE, "aic", float("nan"), float("nan"), float(steps.intercept),
                           np.asarray(steps.coef, dtype=float), float("nan"), problem.names))
         return search, steps, out

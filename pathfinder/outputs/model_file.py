@@ -85,7 +85,7 @@ READS_MAJOR = 1
 KINDS = ("numeric", "level", "square", "interaction")
 N_SOURCES = {"numeric": 1, "level": 1, "square": 1, "interaction": 2}
 N_CENTERS = {"numeric": 0, "level": 0, "square": 1, "interaction": 2}
-LINKS = {name: family.link for name, family in FAMILIES.items()}
+LINKS = {name: family.link_name for name, family in FAMILIES.items()}
 REQUIRED_PICK = ("method", "rule", "mix", "penalty")
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import platform
+from datetime import datetime, timezone
 from importlib import metadata
 
 from ..core.families import get_family
@@ -27,6 +28,7 @@ def run_record(study, command: str) -> dict:
     family = get_family(survey.family)
     record = {
         "command": command,
+        "date": datetime.now(timezone.utc).date().isoformat(),
         "options": study.options.to_dict(),
         "seed": study.options.seed,
         "versions": package_versions(),
@@ -39,6 +41,7 @@ def run_record(study, command: str) -> dict:
         "response": {"column": survey.response_name, "family": survey.family,
                      "family_reason": survey.family_reason,
                      "kind": family.kind, "presence_absence": family.binary,
+                     "link": family.link_name,
                      "prediction": family.mean_words("{}"),
                      "labels": list(survey.response_labels) if survey.response_labels else None},
         "predictors": {"kept": list(survey.predictors), "categorical": list(survey.categorical),

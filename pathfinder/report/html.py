@@ -33,13 +33,13 @@ import pandas as pd
 
 from ..defaults import CORRELATION_THRESHOLD
 from ..errors import InputError
-from . import charts, theme, vendor
+from . import charts, methods, summary, theme, vendor
 
 #: The tables the report reads when an output folder holds them.
 TABLE_NAMES = (
     "coefficients", "path", "cv", "picks", "criteria", "folds", "correlations", "comparison",
     "outer_folds", "stability", "stability_path", "subsets", "stepwise", "importance", "vif", "sites",
-    "response_curves", "rug", "chosen",
+    "response_curves", "rug", "chosen", "skill",
 )
 
 NOT_IN_RUN = "not part of this run"
@@ -190,6 +190,14 @@ def _terms_text(terms, limit: int = 12) -> str:
 
 
 # ---- sections -------------------------------------------------------------------------
+
+
+def section_summary(tables, record) -> Section:
+    s = Section("summary", "At a glance",
+                "What the analysis suggests, how well it predicts sites it did not see, "
+                "and what to be careful about; every figure links to where it comes from.")
+    s.parts.append(summary.summary_html(tables, record))
+    return s
 
 
 def section_data(tables, record) -> Section:
@@ -704,8 +712,38 @@ def section_space(tables, record) -> Section:
     return s
 
 
+def section_methods(tables, record) -> Section:
+    s = Section("methods", "9 Methods for a paper",
+                "What this run did, with the sources of each method, ready to paste and edit "
+                "(also in methods.md).")
+    if record is None:
+        s.parts.append(_absent("The run record (run.json)"))
+        return s
+    s.parts.append(_markdown(methods.methods_text(record, tables)))
+    return s
+
+
+def _markdown(text: str) -> str:
+    """The little Markdown that methods.md uses: headings, paragraphs, one bullet list."""
+    out, items = [], []
+    for line in text.splitlines():
+        if line.startswith("- "):
+            items.append(f"<li>{_esc(line[2:])}</li>")
+            continue
+        if items:
+            out.append(f'<ul class="references">{"".join(items)}</ul>')
+            items = []
+        if line.startswith("## "):
+            out.append(f"<h3>{_esc(line[3:])}</h3>")
+        elif line.strip():
+            out.append(_para(_esc(line)))
+    if items:
+        out.append(f'<ul class="references">{"".join(items)}</ul>')
+    return "".join(out)
+
+
 def section_record(tables, record) -> Section:
-    s = Section("record", "9 Run record", "Everything needed to repeat this run exactly.")
+    s = Section("record", "10 Run record", "Everything needed to repeat this run exactly.")
     if record is None:
         s.parts.append(_absent("The run record (run.json)"))
         return s
@@ -766,12 +804,13 @@ def section_record(tables, record) -> Section:
 
 
 def section_cautions(tables, record) -> Section:
-    s = Section("cautions", "10 Cautions", "What these results can and cannot support.")
+    s = Section("cautions", "11 Cautions", "What these results can and cannot support.")
     s.parts.append(_list(_esc(c) for c in CAUTIONS))
     return s
 
 
 SECTION_BUILDERS = (
+    section_summary,
     section_data,
     section_correlated,
     section_paths,
@@ -780,6 +819,7 @@ SECTION_BUILDERS = (
     section_compare,
     section_chosen,
     section_space,
+    section_methods,
     section_record,
     section_cautions,
 )
@@ -825,10 +865,39 @@ table.record th {{ display: none; }}
 code {{ font-family: {theme.MONO}; font-size: 12.5px; word-break: break-all; }}
 ul {{ margin: 6px 0 12px; padding-left: 22px; }}
 footer {{ margin-top: 40px; font-size: 12.5px; color: var(--muted); }}
+.glance {{ display: grid; grid-template-columns: 1fr 1fr; gap: 8px 32px; }}
+.glance h3, .glance-care h3 {{ font-size: 15.5px; margin: 6px 0 4px; }}
+.glance ul, .glance-care ul {{ margin: 2px 0 6px; }}
+.glance-care {{ font-size: 13.5px; border-left: 3px solid var(--warm); padding-left: 10px; }}
+#summary p {{ margin: 4px 0; }}
 .vega-bindings {{ font-size: 13px; margin: 4px 0 0; }}
 .vega-bindings input[type=range] {{ width: 320px; vertical-align: middle; accent-color: var(--accent); }}
-@media print {{ nav, .vega-bindings, .vega-actions {{ display: none; }} body {{ max-width: none; }} }}
+#summary a {{ color: var(--accent); }}
+@media print {{
+  nav, .vega-bindings, .vega-actions, .vega-embed details {{ display: none !important; }}
+  html {{ background: white; }}
+  body {{ max-width: none; padding: 0; font-size: 10pt; }}
+  section {{ break-before: page; margin-top: 0; }}
+  section#summary {{ break-before: auto; }}
+  figure, table, .glance, .glance-care, p.note {{ break-inside: avoid; }}
+  h2, h3, p.guide {{ break-after: avoid; }}
+  figure {{ overflow: visible; }}
+  .chart canvas, .chart svg {{ max-width: 100% !important; height: auto !important; }}
+  a {{ color: inherit; text-decoration: none; }}
+}}
 """
+
+
+def _page_style(record) -> str:
+    """Print layout: page numbers, and the run's date and input file at the foot of every page."""
+    bits = [b for b in (_get(record, "date") if record else None,
+                        _get(record, "input", "file") if record else None) if b]
+    left = " · ".join(str(b) for b in bits) or "pathfinder report"
+    left = "".join(c for c in left if c not in '\\"<>')     # nothing that ends the string or the style
+    return ("@page { size: A4; margin: 14mm 12mm 16mm; "
+            f'@bottom-left {{ content: "{left}"; font-size: 8pt; color: #555; }} '
+            '@bottom-right { content: "page " counter(page) " of " counter(pages); '
+            "font-size: 8pt; color: #555; } }")
 
 #: Runs first: records script errors, console errors and blocked requests on <html>.
 GUARD = """
@@ -884,7 +953,14 @@ RENDER = """
       box.setAttribute('data-error', String(error && error.message || error));
     });
   });
-  Promise.all(jobs).then(function () { root.setAttribute('data-rendered', String(boxes.length)); });
+  Promise.all(jobs).then(function () {
+    var glance = document.getElementById('summary');
+    if (glance) {   // how far down the page the first screen's summary reaches
+      root.setAttribute('data-summary-bottom',
+                        String(Math.ceil(glance.getBoundingClientRect().bottom + window.scrollY)));
+    }
+    root.setAttribute('data-rendered', String(boxes.length));
+  });
 })();
 """
 
@@ -949,7 +1025,7 @@ def render_page(sections, record) -> str:
             '<!DOCTYPE html>\n<html lang="en">\n<head>\n<meta charset="utf-8">\n',
             f'<meta http-equiv="Content-Security-Policy" content="{CSP}">\n',
             '<meta name="viewport" content="width=device-width, initial-scale=1">\n',
-            f"<title>{_esc(title)}</title>\n<style>{STYLE}</style>\n",
+            f"<title>{_esc(title)}</title>\n<style>{STYLE}{_page_style(record)}</style>\n",
             f"<script>{GUARD}</script>\n</head>\n<body>\n",
             f"<header><h1>{_esc(title)}</h1><p>{' · '.join(sub)}</p></header>\n",
             f"<nav>{nav}</nav>\n<main>\n",
@@ -1000,6 +1076,8 @@ def write_report(folder: Path, tables: dict | None = None, record: dict | None =
     page = render_page(build_sections(tables, record), record)
     target = folder / "report.html"
     _write_atomically(target, page, "w")
+    if record is not None:
+        _write_atomically(folder / "methods.md", methods.methods_text(record, tables), "w")
     return target
 
 

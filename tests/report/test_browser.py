@@ -37,7 +37,7 @@ def _chromium():
 CHROMIUM = _chromium()
 
 
-def open_in_chromium(page: Path, profile: Path) -> tuple:
+def open_in_chromium(page: Path, profile: Path, window: str | None = None) -> tuple:
     """(DOM after the page ran, Chromium's log) for ``page`` opened offline."""
     if CHROMIUM is None:
         pytest.skip("no chromium binary (install the Debian package 'chromium' to run the browser checks)")
@@ -48,6 +48,8 @@ def open_in_chromium(page: Path, profile: Path) -> tuple:
         "--host-resolver-rules=MAP * ~NOTFOUND", "--enable-logging=stderr", "--v=0",
         "--virtual-time-budget=30000", "--dump-dom", page.resolve().as_uri(),
     ]
+    if window:
+        command.insert(1, f"--window-size={window}")
     done = subprocess.run(command, capture_output=True, text=True, timeout=180)
     assert done.returncode == 0, done.stderr[-2000:]
     return done.stdout, done.stderr
