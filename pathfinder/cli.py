@@ -76,6 +76,8 @@ def _add_table_options(p):
                    help="rows with missing values: drop and count them (default) or stop")
     p.add_argument("--decimal", choices=[".", ","], help="decimal mark of the CSV (',' for decimal commas)")
     p.add_argument("--delimiter", help="field delimiter of the CSV (default: detected)")
+    p.add_argument("--na-values", type=_names, metavar="CODE,..",
+                   help="no-data codes to read as missing, such as -9999")
 
 
 def _add_model_options(p):
@@ -204,8 +206,6 @@ def build_parser() -> argparse.ArgumentParser:
                              f"(default {defaults.CORRELATION_THRESHOLD})")
     screen.add_argument("--out", metavar="DIR", help="also write the tables as CSV to this folder")
     screen.add_argument("--overwrite", action="store_true", help="replace a non-empty output folder")
-    screen.add_argument("--na-values", type=_names, metavar="CODE,..",
-                        help="no-data codes to read as missing, such as -9999")
     _add_terminal_options(screen)
 
     predict = _command(
@@ -370,7 +370,7 @@ def _progress(args):
     return ProgressReporter()
 
 
-DEMO_FILES = {"run.json", "report.html", "model.json"}
+DEMO_FILES = {"run.json", "report.html", "model.json", "methods.md"}
 
 
 def _is_earlier_demo(folder: Path) -> bool:

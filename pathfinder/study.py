@@ -61,6 +61,7 @@ class StudyOptions:
     missing: str = "drop"
     decimal: str | None = None
     delimiter: str | None = None
+    na_values: tuple = ()                # no-data codes read as missing (e.g. -9999)
     squares: bool | tuple = False
     interactions: bool | tuple = False
     mixes: tuple = defaults.MIXES
@@ -157,7 +158,8 @@ def load_table(data, options: StudyOptions):
         roles = [options.response, options.effort, options.offset, options.weights, options.groups,
                  options.fold_column, *(options.coords or ())]
         columns = list(dict.fromkeys([*options.predictors, *(r for r in roles if r)]))
-    return read_table(path, decimal=options.decimal, delimiter=options.delimiter, columns=columns)
+    return read_table(path, decimal=options.decimal, delimiter=options.delimiter, columns=columns,
+                      na_values=list(options.na_values) or None)
 
 
 class _Stages:
@@ -208,15 +210,14 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
 
     def prepare(_):
         frame, info = load_table(data, options)
-        fold_column = [options.fold_column] if options.fold_column else []
         survey = prepare_survey(
             frame, response=options.response, family=options.family,
             predictors=list(options.predictors) if options.predictors is not None else None,
-            exclude=list(options.exclude) + fold_column, categorical=list(options.categorical),
+            exclude=list(options.exclude), categorical=list(options.categorical),
             effort=options.effort, offset=options.offset, weights=options.weights,
             coords=list(options.coords) if options.coords else None, groups=options.groups,
-            missing=options.missing)
-        labels = frame[options.fold_column].to_numpy()[survey.rows] if fold_column else None
+            fold_column=options.fold_column, missing=options.missing)
+        labels = survey.fold_labels
         design = build_design(survey.frame, survey.predictors, survey.categorical,
                               squares=options.squares, interactions=options.interactions,
                               weights=survey.weights)
@@ -322,7 +323,9 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
     chosen = recommend(comparison, full_choices)
     result_tables.update(stages.run("describing the chosen model", lambda _: _chosen_tables(
         chosen, problem, survey, design, folds, cv, splits, outer_predictions)))
-    notes = tuple(survey.notes) + tuple(folds.notes) + tuple(cv.notes) + tuple(budget_notes)
+    reading = tuple(info.notes) if info is not None else ()
+    notes = tuple(dict.fromkeys(reading + tuple(survey.notes) + tuple(folds.notes) + tuple(cv.notes)
+                                + tuple(budget_notes)))
     if stability is not None:
         notes += (stability.error_control,) + tuple(stability.notes)
     return Study(

@@ -39,11 +39,10 @@ OUTPUT_SETTINGS = {"figures": ("png", "svg")}
 
 # Smallest whole numbers and number ranges the options take (names that are not
 # options of this version are simply not checked here).
-AT_LEAST = {"folds": 2, "inner_folds": 2, "repeats": 1, "n_penalties": 2, "n_pairs": 2,
+AT_LEAST = {"folds": 2, "inner_folds": 2, "repeats": 1, "grid_per_decade": 1, "n_pairs": 2,
             "nested_pairs": 2, "seed": 0, "subset_budget": 1}
-ABOVE_ZERO = ("block_size", "pfer")
-BETWEEN = {"penalty_ratio": (0.0, 1.0, "strictly between 0 and 1"),
-           "stability_threshold": (0.5, 1.0, "above 0.5 and at most 1")}
+ABOVE_ZERO = ("block_size", "pfer", "grid_decades")
+BETWEEN = {"stability_threshold": (0.5, 1.0, "above 0.5 and at most 1")}
 CHOICES = {"missing": ("drop", "refuse"), "decimal": (".", ",")}
 NUMBER_LISTS = ("mixes",)
 PAIRS = ("coords",)
@@ -242,6 +241,10 @@ def _check_value(key: str, value, kinds: set):
 
 
 def _check_list(key: str, items: list, wrong) -> tuple:
+    if key == "na_values":          # no-data codes: numbers or words, read as text
+        if any(isinstance(v, bool) or not isinstance(v, (str, int, float)) for v in items):
+            raise wrong()
+        return tuple(str(v) for v in items)
     if key in NUMBER_LISTS:
         if not items or any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in items):
             raise wrong()
@@ -263,7 +266,7 @@ def _in_range(key: str, number):
         raise ValueError(f"{key} must be above 0, got {number:g}")
     if key in BETWEEN:
         low, high, words = BETWEEN[key]
-        inside = low < number < high if key == "penalty_ratio" else low < number <= high
+        inside = low < number <= high
         if not inside:
             raise ValueError(f"{key} must lie {words}, got {number:g}")
     return number
