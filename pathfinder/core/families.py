@@ -50,6 +50,7 @@ class Family:
     code: int = -1                 # row function of the compiled kernels
     least_squares = False          # the deviance is a residual sum of squares (closed-form fits)
     binary = False                 # presence/absence: folds are stratified by it, AUC applies
+    counts = False                 # whole-number counts (intake checks the response is one)
     has_scale = False              # an error variance that criteria may count as a parameter
     metrics: tuple = COMMON_METRICS
     row_bound = 0.0                # the compiled row functions' floor or cap (see subclasses)
@@ -247,6 +248,7 @@ class Poisson(Family):
     """A count: log link, variance mu."""
 
     name, link_name, code = "poisson", "log", POISSON_CODE
+    counts = True
     row_bound = _ETA_MAX                           # largest linear predictor
     kind = "count"
 
@@ -305,6 +307,32 @@ def get_family(family) -> Family:
         return FAMILIES[str(family).lower()]
     except KeyError:
         raise InputError(f"unknown family {family!r}: use one of {', '.join(FAMILIES)}") from None
+
+
+def family_for_values(distinct) -> tuple[Family, str]:
+    """The family ``--family auto`` picks for a numeric response, and why (in words).
+
+    0/1 only: binomial (absence/presence); non-negative whole numbers with
+    more than two values: Poisson (counts); anything else: Gaussian.
+    """
+    distinct = np.asarray(distinct, dtype=float)
+    whole = np.all(distinct == np.round(distinct))
+    if set(distinct.tolist()) <= {0.0, 1.0}:
+        return BINOMIAL, "binomial: the response holds only 0 and 1 (absence/presence)"
+    if whole and distinct.min() >= 0 and len(distinct) > 2:
+        return POISSON, (f"poisson: the response holds non-negative whole numbers "
+                         f"({len(distinct)} different values), read as counts")
+    if len(distinct) == 2:
+        return GAUSSIAN, (f"gaussian: the response holds two numbers ({distinct[0]:g}, "
+                          f"{distinct[1]:g}) other than 0/1; recode it as 0/1 for a "
+                          "presence/absence model")
+    return GAUSSIAN, ("gaussian: the response holds numbers that are not all non-negative "
+                      "whole numbers, read as a measurement")
+
+
+def family_for_labels() -> Family:
+    """The family of a response given as two text labels (present/absent)."""
+    return BINOMIAL
 
 
 def null_intercept(family, y, w, offset) -> float:

@@ -31,6 +31,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from pathfinder.core.families import FAMILIES, family_for_labels, family_for_values, get_family
 from pathfinder.data.number_format import (
     MARK_NAMES,
     NumberStyle,
@@ -44,7 +45,6 @@ from pathfinder.errors import InputError, setting
 PARQUET_SUFFIXES = (".parquet", ".pq")
 DELIMITERS = (",", ";", "\t", "|")
 DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", "|": "pipe"}
-FAMILIES = ("gaussian", "binomial", "poisson")
 MIN_ROWS = 10
 
 # Labels read as "present" (coded 1) or "absent" (coded 0) in a two-level response.
@@ -973,9 +973,9 @@ def _check_options(frame, family, missing, max_levels) -> None:
             f"expected a table (pandas DataFrame), got {type(frame).__name__}; read "
             "the file with read_table first"
         )
-    if family not in ("auto",) + FAMILIES:
+    if family not in ("auto", *FAMILIES):
         raise InputError(
-            f"family '{family}' is not known; use auto, gaussian, binomial or poisson"
+            f"family '{family}' is not known; use auto or {', '.join(FAMILIES)}"
         )
     if missing not in ("drop", "refuse"):
         raise InputError(f"missing must be 'drop' or 'refuse', not '{missing}'")
@@ -1186,40 +1186,21 @@ def _code_response(values, is_label, family, name, rows) -> _CodedResponse:
     if is_label:
         return _code_labels(values, family, name)
     distinct = np.unique(values)
-    if len(distinct) == 1 and family != "binomial":
+    chosen = None if family == "auto" else get_family(family)
+    if len(distinct) == 1 and not (chosen is not None and chosen.binary):
         meaning = {0.0: " (no presences)", 1.0: " (no absences)"}.get(float(distinct[0]), "")
         raise InputError(
             f"response '{name}' is {distinct[0]:g} in every usable row{meaning}; a model "
             "needs a response that varies, so check the column"
         )
     reason = f"{family}: chosen by you"
-    if family == "auto":
-        family, reason = _auto_family(distinct)
-    if family == "binomial":
+    if chosen is None:
+        chosen, reason = family_for_values(distinct)
+    if chosen.binary:
         _check_binary(values, name, rows)
-    elif family == "poisson":
+    elif chosen.counts:
         _check_counts(values, name, rows)
-    return _CodedResponse(values.astype(np.float64), family, reason)
-
-
-def _auto_family(distinct: np.ndarray) -> tuple[str, str]:
-    whole = np.all(distinct == np.round(distinct))
-    if set(distinct.tolist()) <= {0.0, 1.0}:
-        return "binomial", "binomial: the response holds only 0 and 1 (absence/presence)"
-    if whole and distinct.min() >= 0 and len(distinct) > 2:
-        return "poisson", (
-            f"poisson: the response holds non-negative whole numbers ({len(distinct)} "
-            "different values), read as counts"
-        )
-    if len(distinct) == 2:
-        return "gaussian", (
-            f"gaussian: the response holds two numbers ({distinct[0]:g}, {distinct[1]:g}) "
-            "other than 0/1; recode it as 0/1 for a presence/absence model"
-        )
-    return "gaussian", (
-        "gaussian: the response holds numbers that are not all non-negative whole "
-        "numbers, read as a measurement"
-    )
+    return _CodedResponse(values.astype(np.float64), chosen.name, reason)
 
 
 def _check_binary(values, name, rows) -> None:
@@ -1305,7 +1286,7 @@ def _code_labels(values, family, name) -> _CodedResponse:
             f"({describe_values(levels)}); a binomial response needs exactly two (such as "
             "present/absent), so merge or recode the labels"
         )
-    if family in ("gaussian", "poisson"):
+    if family != "auto" and not get_family(family).binary:
         raise InputError(
             f"response '{name}' is text ({describe_values(levels)}), but family "
             f"'{family}' needs numbers; use " + setting("family='binomial'", "--family binomial")
@@ -1318,7 +1299,7 @@ def _code_labels(values, family, name) -> _CodedResponse:
     else:
         reason = "binomial: chosen by you"
     note = f"response '{name}': '{one}' is coded 1 and '{zero}' is coded 0 ({why})"
-    return _CodedResponse(y, "binomial", reason, (zero, one), note)
+    return _CodedResponse(y, family_for_labels().name, reason, (zero, one), note)
 
 
 def _drop_uninformative(columns, keep):

@@ -73,7 +73,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..core.families import FAMILIES
+from ..core.families import FAMILIES, get_family
 from ..data.design import Term, apply_design
 from ..data.intake import parse_numbers
 from ..diagnostics.extrapolation import N_PERCENTILES, training_percentiles
@@ -212,10 +212,11 @@ def _number_or_none(value):
 
 
 def _prediction_meaning(family, response, labels, offset_rule) -> str:
-    if family == "binomial":
+    fam = get_family(family)
+    if fam.binary:
         what = f"'{labels['1']}'" if labels else "1"
         return f"probability that {response} is {what}"
-    if family == "poisson":
+    if fam.counts:
         per = ""
         if offset_rule and offset_rule.get("kind") == "effort":
             per = f" for the survey effort in '{offset_rule['column']}'"
