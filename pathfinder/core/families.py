@@ -1,10 +1,13 @@
 """Response families: one class per family, the only place that knows them by name.
 
-Three families cover the responses of habitat models:
+Four families cover the responses of habitat models:
 
 * :class:`Gaussian`  a continuous measure (cover, biomass), identity link;
 * :class:`Binomial`  presence/absence (or a proportion), logit link;
-* :class:`Poisson`   a count, log link (survey effort enters as an offset).
+* :class:`Poisson`   a count, log link (survey effort enters as an offset);
+* :class:`NegativeBinomial`  a count more variable than Poisson allows
+  (animals clump, sites differ unmeasured), log link, variance
+  ``mu + mu^2 / theta`` (NB2).
 
 Each family object holds everything the rest of pathfinder asks about a
 response: its link and inverse link, variance function, unit deviance and
@@ -25,7 +28,7 @@ is ``sum(w * deviance_i) / (2 n) + penalty``.
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import expit, gammaln, xlogy
+from scipy.special import digamma, expit, gammaln, polygamma, xlogy
 
 from ..errors import InputError
 from . import kernels
@@ -37,7 +40,13 @@ _ETA_MAX = 30.0
 
 # Codes of the row functions in the compiled kernels (core/kernels.py,
 # core/kernels_subsets.py); the Gaussian rows need no function of their own.
-GAUSSIAN_CODE, BINOMIAL_CODE, POISSON_CODE = 0, 1, 2
+GAUSSIAN_CODE, BINOMIAL_CODE, POISSON_CODE, NEGATIVE_BINOMIAL_CODE = 0, 1, 2, 3
+
+# The largest theta a negative binomial fit reports: beyond it the variance
+# exceeds the Poisson variance by under a millionth of mu^2, nothing the data
+# can tell from Poisson (and the score of theta is lost in rounding).
+THETA_MAX = 1e6
+THETA_MIN = 1e-8
 
 COMMON_METRICS = ("deviance", "mse", "mae", "deviance_explained")
 
@@ -55,6 +64,25 @@ class Family:
     metrics: tuple = COMMON_METRICS
     row_bound = 0.0                # the compiled row functions' floor or cap (see subclasses)
     kind = ""                      # the response in a reader's words
+    takes_theta = False            # a shape parameter theta (negative binomial)
+    theta = None                   # its value, or None while it is still to be estimated
+
+    @property
+    def row_shape(self) -> float:
+        """The compiled row functions' shape argument (theta; 0 for families without one)."""
+        return 0.0
+
+    @property
+    def needs_theta(self) -> bool:
+        """True while the family's theta is still to be estimated from the data."""
+        return self.takes_theta and self.theta is None
+
+    def with_theta(self, theta):
+        """This family with theta fixed (``None`` leaves it as it is)."""
+        if theta is None:
+            return self
+        raise InputError(f"theta belongs to the negative binomial family; the {self.name} "
+                         "family has none: drop theta or choose the negative binomial family")
 
     # ---- arithmetic ------------------------------------------------------
     def inverse_link(self, eta):
@@ -73,6 +101,11 @@ class Family:
         """Full log-likelihood of each column of ``mu`` (n, K) (or of ``mu`` (n,)); ``w`` sums to n."""
         raise NotImplementedError
 
+    def log_likelihood_constant(self, y, w) -> float:
+        """The part of the log-likelihood that depends on the data alone (0 unless a family
+        says otherwise); compiled fits leave it out and add it back."""
+        return 0.0
+
     def deviance(self, y, mu, w) -> float:
         """Weighted total deviance ``sum(w * d(y, mu))``."""
         return float(np.dot(w, self.unit_deviance(y, mu)))
@@ -88,8 +121,17 @@ class Family:
         """
         n = y.shape[0]
         W, resid, mu = np.empty(n), np.empty(n), np.empty(n)
-        dev = kernels.glm_evaluate(y, eta, w, self.code, self.row_bound, W, resid, mu)
+        dev = kernels.glm_evaluate(y, eta, w, self.code, self.row_bound, self.row_shape,
+                                   W, resid, mu)
         return dev, W, resid, mu
+
+    def score(self, y, mu, w):
+        """Derivative of each row's weighted log-likelihood by its linear predictor.
+
+        ``w (y - mu)`` for the canonical links of this module (the gradient of
+        the fitting core is ``X' score / n``).
+        """
+        return w * (y - mu)
 
     def working_weights(self, eta, w):
         """The IRLS weights ``w V(mu)`` alone, the variance floored as in :meth:`evaluate`."""
@@ -273,6 +315,9 @@ class Poisson(Family):
         mu = np.maximum(mu, 1e-300)
         return (wc * (xlogy(y, mu) - mu - gammaln(y + 1.0))).sum(axis=0)
 
+    def log_likelihood_constant(self, y, w) -> float:
+        return -float(np.dot(w, gammaln(np.asarray(y, dtype=float) + 1.0)))
+
     def check_response(self, y, where="the response"):
         if np.any(y < 0):
             raise InputError(f"a Poisson response must be non-negative counts; check {where} "
@@ -287,6 +332,188 @@ class Poisson(Family):
         return f"expected {response}"
 
 
+class NegativeBinomial(Family):
+    """A count more variable than Poisson: log link, variance ``mu + mu^2 / theta`` (NB2).
+
+    The negative binomial of Venables & Ripley (2002, Modern Applied
+    Statistics with S, 4th ed., section 7.4): a Poisson count whose mean is
+    itself gamma-distributed with shape theta, so small theta means strongly
+    clumped counts and theta -> infinity gives the Poisson family back.
+    ``NegativeBinomial(theta)`` fixes theta; ``NegativeBinomial()`` (what
+    ``get_family("negative_binomial")`` gives) leaves it to be estimated by
+    maximum likelihood (:func:`theta_ml`, alternating with the coefficients
+    in :func:`pathfinder.core.glm.fit_glm` and
+    :func:`pathfinder.core.glm.estimate_theta`). Arithmetic that needs theta
+    refuses to run while it is still unknown.
+
+    The log link is not canonical for this family, so the IRLS weights are
+    ``w mu / (1 + mu / theta)``, the working residuals ``(y - mu) / mu`` and
+    the scores ``w (y - mu) / (1 + mu / theta)`` (Fisher scoring).
+    """
+
+    name, link_name, code = "negative_binomial", "log", NEGATIVE_BINOMIAL_CODE
+    counts = True
+    row_bound = _ETA_MAX                           # largest linear predictor
+    kind = "count"
+    takes_theta = True
+
+    def __init__(self, theta=None):
+        if theta is not None:
+            try:
+                theta = float(theta)
+            except (TypeError, ValueError):
+                raise InputError(f"theta must be a positive number, got {theta!r}") from None
+            if not (np.isfinite(theta) and theta > 0):
+                raise InputError(f"theta must be a positive number (smaller means more "
+                                 f"clumped counts), got {theta!r}")
+        self.theta = theta
+
+    def with_theta(self, theta):
+        return self if theta is None else NegativeBinomial(theta)
+
+    def _theta(self) -> float:
+        if self.theta is None:
+            raise InputError("the negative binomial family needs theta here: give it "
+                             "(theta=...) or let a fit estimate it first")
+        return self.theta
+
+    @property
+    def row_shape(self):
+        return self._theta()
+
+    def inverse_link(self, eta):
+        return np.exp(np.minimum(eta, _ETA_MAX))
+
+    def link(self, mu):
+        return np.log(np.maximum(mu, 1e-300))
+
+    def variance(self, mu):
+        return mu + mu * mu / self._theta()
+
+    def unit_deviance(self, y, mu):
+        """``2 [y log(y / mu) - (y + theta) log((y + theta) / (mu + theta))]``."""
+        theta = self._theta()
+        mu = np.maximum(mu, 1e-300)
+        return 2.0 * (xlogy(y, y / mu) - (y + theta) * np.log1p((y - mu) / (mu + theta)))
+
+    def score(self, y, mu, w):
+        return w * (y - mu) / (1.0 + mu / self._theta())
+
+    def working_weights(self, eta, w):
+        mu = np.exp(np.minimum(eta, self.row_bound))
+        return w * np.maximum(mu, 1e-10) / (1.0 + mu / self._theta())
+
+    def log_likelihood(self, y, mu, w):
+        """Full log-likelihood: ``log Gamma(y + theta) - log Gamma(theta) - log y!
+        + theta log(theta / (theta + mu)) + y log(mu / (theta + mu))``."""
+        theta = self._theta()
+        y, mu, wc = _columns(y, mu, w)
+        mu = np.maximum(mu, 1e-300)
+        each = (gammaln(y + theta) - gammaln(theta) - gammaln(y + 1.0)
+                - theta * np.log1p(mu / theta) + xlogy(y, mu / (theta + mu)))
+        return (wc * each).sum(axis=0)
+
+    def null_intercept(self, y, w, offset) -> float:
+        """As :meth:`Family.null_intercept`, with the scores and Fisher weights of the
+        non-canonical log link (without an offset the answer is still log of the mean)."""
+        ybar = float(np.dot(w, y) / w.sum())
+        b0 = self.start_intercept(ybar)
+        if not np.any(offset):
+            return b0
+        b0 -= float(np.dot(w, offset) / w.sum())
+        for _ in range(100):
+            mu = self.inverse_link(b0 + offset)
+            grad = float(np.sum(self.score(y, mu, w)))
+            hess = float(np.sum(self.working_weights(b0 + offset, w)))
+            step = grad / max(hess, 1e-300)
+            b0 += step
+            if abs(step) < 1e-12 * (1 + abs(b0)):
+                break
+        return b0
+
+    def check_response(self, y, where="the response"):
+        if np.any(y < 0):
+            raise InputError(f"a negative binomial response must be non-negative counts; check "
+                             f"{where} or choose another family")
+
+    def check_means(self, mu, where):
+        if np.any(mu <= 0):
+            raise InputError(f"{where}: predicted counts must be positive; "
+                             "predict on the response scale, not the link scale")
+
+    def mean_words(self, response):
+        return f"expected {response}"
+
+    def __repr__(self):
+        return "NegativeBinomial()" if self.theta is None else f"NegativeBinomial(theta={self.theta!r})"
+
+    def __eq__(self, other):
+        if isinstance(other, str):
+            return other.lower() == self.name
+        return isinstance(other, NegativeBinomial) and other.theta == self.theta
+
+    __hash__ = Family.__hash__
+
+    def __reduce__(self):              # keeps theta in workers
+        return (NegativeBinomial, (self.theta,))
+
+
+def theta_ml(y, mu, w=None, start=None, tol=1e-10, max_iter=100):
+    """Maximum-likelihood theta of a negative binomial with the means ``mu`` held.
+
+    Solves the score equation of Venables & Ripley (2002, section 7.4; their
+    ``theta.ml``)
+
+        sum_i w_i [psi(y_i + theta) - psi(theta) + log(theta) + 1
+                   - log(theta + mu_i) - (y_i + theta) / (theta + mu_i)] = 0
+
+    by Newton's method on ``log(theta)`` (observed information, trigamma
+    terms), kept inside a bracket where the score changes sign and bisected
+    when a step would leave it. The start is the moment estimate
+    ``n / sum w (y / mu - 1)^2`` unless ``start`` is given. Returns theta,
+    clipped to ``[THETA_MIN, THETA_MAX]``: at ``THETA_MAX`` the counts show
+    no overdispersion the data can measure (the fit is the Poisson fit).
+    """
+    y = np.asarray(y, dtype=float)
+    mu = np.maximum(np.asarray(mu, dtype=float), 1e-300)
+    w = np.ones_like(y) if w is None else np.asarray(w, dtype=float)
+
+    def score(theta):
+        return float(np.dot(w, digamma(y + theta) - digamma(theta) + np.log(theta) + 1.0
+                            - np.log(theta + mu) - (y + theta) / (theta + mu)))
+
+    def slope(theta):          # d score / d log(theta)
+        d = (polygamma(1, y + theta) - polygamma(1, theta) + 1.0 / theta - 2.0 / (theta + mu)
+             + (y + theta) / (theta + mu) ** 2)
+        return theta * float(np.dot(w, d))
+
+    lo, hi = np.log(THETA_MIN), np.log(THETA_MAX)
+    if score(THETA_MAX) >= 0:
+        return THETA_MAX
+    if score(THETA_MIN) <= 0:
+        return THETA_MIN
+    if start is None:
+        spread = float(np.dot(w, (y / mu - 1.0) ** 2))
+        start = w.sum() / spread if spread > 0 else THETA_MAX
+    t = float(np.clip(np.log(start), lo, hi))
+    for _ in range(max_iter):
+        s = score(np.exp(t))
+        if s > 0:          # the score falls through zero as theta grows
+            lo = t
+        else:
+            hi = t
+        g = slope(np.exp(t))
+        step = -s / g if g < 0 else np.inf
+        new = t + step
+        if not (lo < new < hi):
+            new = 0.5 * (lo + hi)
+        if abs(new - t) < tol or hi - lo < tol:
+            t = new
+            break
+        t = new
+    return float(np.exp(t))
+
+
 def _columns(y, mu, w):
     """y, mu and w shaped to broadcast over the columns of ``mu`` (n, K) or (n,)."""
     mu = np.asarray(mu, dtype=float)
@@ -296,17 +523,20 @@ def _columns(y, mu, w):
 
 
 GAUSSIAN, BINOMIAL, POISSON = Gaussian(), Binomial(), Poisson()
-FAMILIES = {f.name: f for f in (GAUSSIAN, BINOMIAL, POISSON)}
+NEGATIVE_BINOMIAL = NegativeBinomial()          # theta to be estimated
+FAMILIES = {f.name: f for f in (GAUSSIAN, BINOMIAL, POISSON, NEGATIVE_BINOMIAL)}
 
 
-def get_family(family) -> Family:
-    """The family object for a name (any case) or a family object."""
-    if isinstance(family, Family):
-        return family
-    try:
-        return FAMILIES[str(family).lower()]
-    except KeyError:
-        raise InputError(f"unknown family {family!r}: use one of {', '.join(FAMILIES)}") from None
+def get_family(family, theta=None) -> Family:
+    """The family object for a name (any case) or a family object; ``theta`` fixes
+    the negative binomial's theta (and is refused by the families without one)."""
+    if not isinstance(family, Family):
+        try:
+            family = FAMILIES[str(family).lower()]
+        except KeyError:
+            raise InputError(f"unknown family {family!r}: use one of "
+                             f"{', '.join(FAMILIES)}") from None
+    return family.with_theta(theta)
 
 
 def family_for_values(distinct) -> tuple[Family, str]:

@@ -217,15 +217,20 @@ def cd_naive(X, W, r, beta, b0, ws, xv, l1, l2, fit_intercept, tol, max_sweeps, 
 
 # ---- family arithmetic in one pass over the rows -----------------------------
 
-BINOMIAL_ROWS = 1   # families.BINOMIAL_CODE (kernels import nothing; a test keeps them equal)
-# Each fills the IRLS working weights W = w V(mu) (V floored), the working
-# residuals (y - mu) / V(mu) and the means, and returns the weighted deviance
-# sum_i w_i d_i, computed stably from the linear predictor.
+BINOMIAL_ROWS = 1            # families.BINOMIAL_CODE (kernels import nothing; a test keeps them equal)
+NEGATIVE_BINOMIAL_ROWS = 3   # families.NEGATIVE_BINOMIAL_CODE
+# Each row function returns (w_i * deviance_i / 2, mean, V', d mu / d eta),
+# computed stably from the linear predictor: the IRLS working weight is
+# w_i * V' with V' = (d mu / d eta)^2 / V(mu) (floored), the working residual
+# (y_i - mu_i) / (d mu / d eta), and the score w_i (y_i - mu_i) (d mu / d eta) / V(mu).
+# For the canonical links (binomial, Poisson) d mu / d eta = V(mu), so V' is
+# the floored variance itself. ``shape`` is the negative binomial's theta
+# (ignored by the other families).
 
 
 @njit(cache=True, inline="always")
 def _binomial_row(yi, wi, e, floor):
-    """(w_i * deviance_i / 2, mean, floored variance) of one row, logit link."""
+    """(w_i * deviance_i / 2, mean, floored variance, the same) of one row, logit link."""
     t = np.exp(-abs(e))
     l = np.log1p(t)
     if e >= 0:
@@ -240,12 +245,12 @@ def _binomial_row(yi, wi, e, floor):
     v = m * (1.0 - m)
     if v < floor:
         v = floor
-    return wi * d, m, v
+    return wi * d, m, v, v
 
 
 @njit(cache=True, inline="always")
 def _poisson_row(yi, wi, e, eta_max):
-    """(w_i * deviance_i / 2, mean, floored variance) of one row, log link."""
+    """(w_i * deviance_i / 2, mean, floored variance, the same) of one row, log link."""
     if e > eta_max:
         e = eta_max
     m = np.exp(e)
@@ -253,7 +258,29 @@ def _poisson_row(yi, wi, e, eta_max):
     if yi > 0:
         d += yi * (np.log(yi) - e)
     v = m if m > 1e-10 else 1e-10
-    return wi * d, m, v
+    return wi * d, m, v, v
+
+
+@njit(cache=True, inline="always")
+def _negative_binomial_row(yi, wi, e, eta_max, theta):
+    """(w_i * deviance_i / 2, mean, IRLS weight factor, d mu / d eta) of one row:
+    NB2 (variance mu + mu^2 / theta), log link.
+
+    Half the unit deviance is ``y log(y / mu) - (y + theta) log((y + theta) / (mu + theta))``,
+    the second log taken as ``log1p((y - mu) / (mu + theta))`` so that it tends
+    to the Poisson row's ``mu - y`` as theta grows. The log link is not
+    canonical here: d mu / d eta = mu while V = mu (1 + mu / theta), so the
+    working weight is ``w mu / (1 + mu / theta)`` and the working residual
+    ``(y - mu) / mu``.
+    """
+    if e > eta_max:
+        e = eta_max
+    m = np.exp(e)
+    d = -(yi + theta) * np.log1p((yi - m) / (m + theta))
+    if yi > 0:
+        d += yi * (np.log(yi) - e)
+    dm = m if m > 1e-10 else 1e-10
+    return wi * d, m, dm / (1.0 + m / theta), dm
 
 
 @njit(cache=True, inline="always")
@@ -266,25 +293,28 @@ def mean_at(e, code, bound):
 
 
 @njit(cache=True, inline="always")
-def _family_row(yi, wi, e, code, bound):
+def _family_row(yi, wi, e, code, bound, shape):
     """The row function of the family whose code is ``code`` (see
     :mod:`pathfinder.core.families`): ``bound`` is the variance floor
-    (binomial) or the largest linear predictor (Poisson)."""
+    (binomial) or the largest linear predictor (Poisson, negative binomial);
+    ``shape`` is the negative binomial's theta."""
     if code == BINOMIAL_ROWS:
         return _binomial_row(yi, wi, e, bound)
+    if code == NEGATIVE_BINOMIAL_ROWS:
+        return _negative_binomial_row(yi, wi, e, bound, shape)
     return _poisson_row(yi, wi, e, bound)
 
 
 @njit(cache=True)
-def glm_evaluate(y, eta, w, code, bound, W, resid, mu):
-    """Binomial (logit) or Poisson (log) rows: one exp and at most one log each."""
+def glm_evaluate(y, eta, w, code, bound, shape, W, resid, mu):
+    """Binomial (logit), Poisson or negative binomial (log) rows: one exp and at most two logs each."""
     total = 0.0
     for i in range(y.shape[0]):
-        d, m, v = _family_row(y[i], w[i], eta[i], code, bound)
+        d, m, v, dm = _family_row(y[i], w[i], eta[i], code, bound, shape)
         total += d
         mu[i] = m
         W[i] = w[i] * v
-        resid[i] = (y[i] - m) / v
+        resid[i] = (y[i] - m) / dm
     return 2.0 * total
 
 
@@ -375,7 +405,7 @@ def _gather(buf, X, rows, used, start, m):
 
 
 @njit(cache=True, nogil=True)
-def glm_pass(X, rows, used, center, coef, b0, offset, y, w, active, gcols, code, bound,
+def glm_pass(X, rows, used, center, coef, b0, offset, y, w, active, gcols, code, bound, shape,
              with_deviance, lo, hi, eta, grad, anchor, track):
     """Rows ``lo:hi``: linear predictor from scratch, family arithmetic, gradient.
 
@@ -383,8 +413,10 @@ def glm_pass(X, rows, used, center, coef, b0, offset, y, w, active, gcols, code,
     copied), ``eta = offset + b0 + Xc[:, active] @ coef[active]``; then the
     means (and, if ``with_deviance``, the deviances: a log per row) as in
     :func:`glm_evaluate`; then
-    ``grad[k] += sum_i Xc[i, gcols[k]] * w_i (y_i - mu_i)`` and, in the last
-    slot, the same sum for the intercept. An empty ``offset`` stands for
+    ``grad[k] += sum_i Xc[i, gcols[k]] * s_i`` and, in the last slot, the same
+    sum for the intercept, with the scores ``s_i = w_i (y_i - mu_i)`` (divided
+    by ``1 + mu_i / shape`` for the negative binomial, whose log link is not
+    canonical). An empty ``offset`` stands for
     zeros and empty weights ``w`` for ones. Rows go in blocks of ``PASS_ROWS``,
     so each block of X comes from memory once and is reused from cache.
 
@@ -423,11 +455,14 @@ def glm_pass(X, rows, used, center, coef, b0, offset, y, w, active, gcols, code,
             r = start + i
             wr = w[r] if w.shape[0] else 1.0
             if with_deviance:
-                d, mean, v = _family_row(y[r], wr, e[i], code, bound)
+                d, mean, v, dm = _family_row(y[r], wr, e[i], code, bound, shape)
                 total += d
             else:
                 mean = mean_at(e[i], code, bound)
-            score[i] = wr * (y[r] - mean)
+            if code == NEGATIVE_BINOMIAL_ROWS:
+                score[i] = wr * (y[r] - mean) / (1.0 + mean / shape)
+            else:
+                score[i] = wr * (y[r] - mean)
             s0 += score[i]
             if track == 1:
                 gap = score[i] - anchor[r]
@@ -494,11 +529,11 @@ def column_spread(X, rows, j, mean, w):
 
 
 @njit(cache=True, nogil=True)
-def glm_deviance(y, w, eta, code, bound, lo, hi):
+def glm_deviance(y, w, eta, code, bound, shape, lo, hi):
     """Weighted deviance ``sum w_i d_i`` of rows ``lo:hi`` at linear predictor ``eta``."""
     total = 0.0
     for r in range(lo, hi):
-        d, mean, v = _family_row(y[r], w[r], eta[r], code, bound)
+        d, mean, v, dm = _family_row(y[r], w[r], eta[r], code, bound, shape)
         total += d
     return 2.0 * total
 

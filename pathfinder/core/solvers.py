@@ -11,7 +11,7 @@ rules and the KKT check) and (c) report the deviance. The path driver in
 * :class:`NaiveSolver` any family: IRLS (Newton) outer loop with
   coordinate descent on one standardised copy of X inside, step halving when
   the penalised objective does not decrease.
-* :class:`NewtonGramSolver` binomial and Poisson on long tables (n >> p):
+* :class:`NewtonGramSolver` binomial, Poisson and negative binomial on long tables (n >> p):
   Newton steps whose quadratic model uses the weighted Gram matrix of the
   working set, estimated from an evenly spread sample of rows and kept while
   it still converges fast; each step then costs one pass over the working
@@ -350,7 +350,7 @@ class NaiveSolver(Solver):
         self._set_eta(self.b0 + self.Xs @ self.beta + self.offset)
 
     def gradient(self, limit=None):
-        return self.Xs.T @ (self.w * (self.y - self.mu)) / self.n
+        return self.Xs.T @ self.family.score(self.y, self.mu, self.w) / self.n
 
     def deviance(self):
         return self.dev
@@ -377,7 +377,8 @@ def blas_threads() -> int:
 
 
 class NewtonGramSolver(Solver):
-    """Binomial and Poisson, n >> p: Newton steps on the working set's weighted Gram matrix.
+    """Binomial, Poisson and negative binomial, n >> p: Newton steps on the working set's
+    weighted Gram matrix.
 
     The penalised Newton step minimises the quadratic model
 
@@ -385,7 +386,8 @@ class NewtonGramSolver(Solver):
 
     over the working set and the intercept, where ``g`` is the exact gradient
     of the log-likelihood (one pass over the rows) and ``H = X'WX / n`` the
-    weighted Gram matrix. Coordinate descent on ``H`` (:func:`cd_gram`) costs
+    weighted Gram matrix (W the IRLS weights, Fisher's for the negative
+    binomial's non-canonical log link). Coordinate descent on ``H`` (:func:`cd_gram`) costs
     nothing in n. ``H`` is only a metric for the step: any positive definite
     ``H`` has the same fixed point, the penalised maximum-likelihood fit. So it
     is estimated from an evenly spread sample of at most ``HESSIAN_ROWS`` rows,
@@ -423,6 +425,7 @@ class NewtonGramSolver(Solver):
         self.family = family
         self.code = family.code
         self.bound = family.row_bound
+        self.shape = family.row_shape
         self.tol = tol
         self.max_sweeps = max_sweeps
         self.max_newton = max_newton
@@ -487,7 +490,7 @@ class NewtonGramSolver(Solver):
             devs[c], drifts[c] = glm_pass(
                 self.X, self.rows, used, self.center, coef, self.b0, self._offset, self.y,
                 self._w, active, gcols,
-                self.code, self.bound, with_deviance, lo, hi, self.eta, parts[c],
+                self.code, self.bound, self.shape, with_deviance, lo, hi, self.eta, parts[c],
                 self.anchor, track)
 
         self._chunks(work)
@@ -543,7 +546,8 @@ class NewtonGramSolver(Solver):
             devs = np.zeros(-(-self.n // CHUNK_ROWS))
 
             def work(c, lo, hi):
-                devs[c] = glm_deviance(self.y, self.w, self.eta, self.code, self.bound, lo, hi)
+                devs[c] = glm_deviance(self.y, self.w, self.eta, self.code, self.bound,
+                                       self.shape, lo, hi)
 
             self._chunks(work)
             self.dev = float(devs.sum())
