@@ -126,10 +126,14 @@ def _add_choosing_options(p):
     p.add_argument("--no-stability", dest="stability", action="store_const", const=False,
                    help="skip stability selection")
     p.add_argument("--subset-budget", type=int, metavar="N",
-                   help="largest number of models the best-subset search may fit "
-                        f"(default {defaults.SUBSET_MODELS}, "
-                        "and for binomial and Poisson at most 2e8 / rows; the subset size is "
-                        "capped to fit)")
+                   help="models the best-subset search may fit exactly before it searches instead "
+                        f"(default: {defaults.SUBSET_PROOF_MODELS:.0e} for a continuous response; "
+                        f"{defaults.SUBSET_EXACT_ROW_FITS:.0e} / rows for presence/absence and "
+                        "counts); each size says whether it was proved or searched")
+    p.add_argument("--subset-sizes", type=int, metavar="K",
+                   help="largest subset size searched (default: every size for a continuous "
+                        "response; else until AIC, AICc and BIC have all risen for "
+                        f"{defaults.SUBSET_RISING_SIZES} sizes running)")
     p.add_argument("--no-subsets", dest="subsets", action="store_const", const=False,
                    help="skip the best-subset and stepwise searches")
     p.add_argument("--jobs", type=int, default=1, metavar="N", help="local worker processes (default 1)")

@@ -35,8 +35,9 @@ STABILITY_THRESHOLD = 0.75            # selection frequency that makes a term st
 RELAXATION_STEPS = 8                  # relaxations 0, 1/8, ..., 1 between refit and lasso
 
 # ---- subset searches -------------------------------------------------------
-SUBSET_MODELS = 50_000                # models a best-subset search may fit
-SUBSET_ROW_MODELS = 2 * 10**8         # binomial / Poisson: models x rows the default allows
+SUBSET_PROOF_MODELS = 200_000_000     # least squares: models leaps and bounds may visit (minutes)
+SUBSET_EXACT_ROW_FITS = 2 * 10**8     # binomial / Poisson: fits x rows spent comparing every subset
+SUBSET_RISING_SIZES = 5               # sizes covered until AIC, AICc and BIC all rose this many times
 
 # ---- collinearity ----------------------------------------------------------
 CORRELATION_THRESHOLD = 0.7           # |r| at which terms move together (Dormann et al. 2013)

@@ -32,8 +32,8 @@ from .choose.nested import FoldPlan, choices, comparison_table, held_out_predict
 from .choose.folds import block_of
 from .choose.relaxed import relaxed_lasso
 from .choose.skill import held_out_skill
-from .choose.selectors import (StabilitySelector, SubsetSelector,
-                               default_subset_budget, largest_search_size)
+from .choose.by_size import compare_by_size
+from .choose.selectors import StabilitySelector, SubsetSelector
 from .choose.subsets import model_average, variable_importance
 from .data.design import Design, build_design
 from .diagnostics.collinearity import correlation_clusters, correlation_matrix, variance_inflation
@@ -81,7 +81,8 @@ class StudyOptions:
     pfer: float | None = None
     nested_pairs: int = defaults.NESTED_STABILITY_PAIRS
     subsets: bool = True
-    subset_budget: int | None = None    # None: default_subset_budget (fewer models on long tables)
+    subset_budget: int | None = None    # exact subset fits allowed (None: the search's own default)
+    subset_sizes: int | None = None     # largest subset size (None: until the criteria turn up)
     seed: int = defaults.SEED
 
     def __post_init__(self):
@@ -109,7 +110,10 @@ class StudyOptions:
         if self.stability_threshold is not None and not 0.5 < float(self.stability_threshold) <= 1:
             raise InputError("the stability threshold must lie above 0.5 and at most 1 (e.g. 0.75)")
         if self.subset_budget is not None and int(self.subset_budget) < 1:
-            raise InputError("the subset budget must be a positive number of models")
+            raise InputError("the subset budget must be a positive number of models "
+                             "(--subset-budget N)")
+        if self.subset_sizes is not None and int(self.subset_sizes) < 1:
+            raise InputError("the largest subset size must be at least 1 (--subset-sizes K)")
         if self.metric not in METRICS:
             raise InputError(f"unknown metric {self.metric!r}: use one of {', '.join(METRICS)}")
 
@@ -272,16 +276,7 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
                 pfer=options.pfer, mix=selector.mix, strata=selector.strata, units=selector.units,
                 term_groups=selector.term_groups))
         if options.subsets:
-            budget = options.subset_budget
-            if budget is None:
-                budget = default_subset_budget(survey.family, survey.n)
-                if budget < defaults.SUBSET_MODELS:
-                    size = largest_search_size(problem.X.shape[1], budget)
-                    budget_notes.append(
-                        f"with {survey.n:,} rows the best-subset search was limited to {budget:,} "
-                        f"models (subsets of up to {size} terms) to keep the run to minutes; "
-                        "--subset-budget N searches further")
-            chooser = SubsetSelector(budget=int(budget))
+            chooser = SubsetSelector(max_fits=options.subset_budget, max_size=options.subset_sizes)
             selectors.append(chooser)
         outer, outer_predictions = None, {}
         if options.nested:
@@ -295,12 +290,15 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
                 problem, None, run=runner(tick)))
             full_choices += made
             extra_tables["stepwise"] = steps.steps
-            if search is not None:
-                table = search.akaike("aicc")
-                extra_tables["subsets"] = table
-                importance = variable_importance(table, problem.names)
-                extra_tables["importance"] = importance.rename("importance").rename_axis("term").reset_index()
-                extra_tables["averaged"] = _averaged_table(search, table, problem.names)
+            table = search.akaike("aicc")
+            extra_tables["subsets"] = table
+            extra_tables["subset_sizes"] = search.sizes
+            importance = variable_importance(table, problem.names)
+            extra_tables["importance"] = importance.rename("importance").rename_axis("term").reset_index()
+            extra_tables["averaged"] = _averaged_table(search, table, problem.names)
+            if 1.0 in cv.fits:
+                extra_tables["by_size"] = compare_by_size(problem, search, cv.fits[1.0])
+            budget_notes.extend(search.notes)
     fit_warnings = tuple(dict.fromkeys(str(w.message) for w in caught
                                        if issubclass(w.category, FitWarning)))
 

@@ -40,7 +40,7 @@ OUTPUT_SETTINGS = {"figures": ("png", "svg")}
 # Smallest whole numbers and number ranges the options take (names that are not
 # options of this version are simply not checked here).
 AT_LEAST = {"folds": 2, "inner_folds": 2, "repeats": 1, "grid_per_decade": 1, "n_pairs": 2,
-            "nested_pairs": 2, "seed": 0, "subset_budget": 1}
+            "nested_pairs": 2, "seed": 0, "subset_budget": 1, "subset_sizes": 1}
 ABOVE_ZERO = ("block_size", "pfer", "grid_decades")
 BETWEEN = {"stability_threshold": (0.5, 1.0, "above 0.5 and at most 1")}
 CHOICES = {"missing": ("drop", "refuse"), "decimal": (".", ",")}

@@ -176,11 +176,6 @@ def _hat_trace(G, ridge):
 
 # ---- log-likelihoods -----------------------------------------------------------
 
-def _log_likelihood(family, y, mu, w):
-    """Full log-likelihood of each column of ``mu`` (n, K); ``w`` sums to n."""
-    return get_family(family).log_likelihood(y, mu, w)
-
-
 def _check_matches_fit(fit, fam, y, mu, w):
     """The data must reproduce the fitted deviance, or every criterion is wrong."""
     dev = (w[:, None] * fam.unit_deviance(y[:, None], mu)).sum(axis=0)

@@ -16,35 +16,14 @@ outer error.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
 
-from ..core.families import get_family
-from ..defaults import STABILITY_PAIRS, SUBSET_MODELS, SUBSET_ROW_MODELS
+from ..defaults import STABILITY_PAIRS
 from .problem import BEST_SUBSET, STABILITY, STEPWISE, Choice, Problem, refit, subproblem
 from .stability import stability_selection
 from .subsets import best_subsets, stepwise
-
-
-def default_subset_budget(family, n_rows: int) -> int:
-    """The best-subset budget when none is given: ``SUBSET_MODELS`` models, and
-    for families fitted row by row (each model is fitted on every row) no more
-    than ``SUBSET_ROW_MODELS`` model-rows (a few seconds a search on one core,
-    measured), so a long table keeps the search short."""
-    if get_family(family).least_squares:   # fitted from the cross-products: the rows cost nothing
-        return SUBSET_MODELS
-    return max(1, min(SUBSET_MODELS, SUBSET_ROW_MODELS // max(int(n_rows), 1)))
-
-
-def largest_search_size(p: int, budget: int) -> int:
-    """The largest subset size whose exhaustive search fits within ``budget`` models."""
-    total, size = 1, 0
-    while size < p and total + math.comb(p, size + 1) <= budget:
-        size += 1
-        total += math.comb(p, size)
-    return size
 
 
 @dataclass(frozen=True, eq=False)
@@ -79,25 +58,30 @@ class StabilitySelector:
 
 @dataclass(frozen=True, eq=False)
 class SubsetSelector:
-    """Best subset by AICc and BIC (when the search fits the budget) and stepwise by AIC."""
+    """Best subset by AICc and BIC over every size searched, and stepwise by AIC.
 
-    budget: int = SUBSET_MODELS
+    The search covers every size it can (see :func:`subsets.best_subsets`):
+    least squares are proved best at every size by leaps and bounds; binomial
+    and Poisson sizes are compared exhaustively while affordable and searched
+    beyond, and the table says which. ``max_fits`` (None: the search's own
+    default) bounds the exact part; what it leaves unproved is said in the
+    notes. Criteria count the Gaussian error variance as a parameter (Hurvich
+    & Tsai 1989), as the criteria table of the paths does.
+    """
 
-    def max_size(self, p: int) -> int:
-        return largest_search_size(p, self.budget)
+    max_fits: int | None = None
+    max_size: int | None = None
 
     def run(self, problem: Problem, rows, run=None):
-        """(subset search or None, stepwise result, choices) on ``rows``."""
+        """(subset search, stepwise result, choices) on ``rows``."""
         base = np.arange(problem.n) if rows is None else rows
-        out, search = [], None
-        size = self.max_size(problem.X.shape[1])
-        if size >= 1:
-            search = best_subsets(problem, max_size=size, rows=base, max_models=self.budget, run=run,
-                                  count_variance=True)
-            for criterion in ("aicc", "bic"):
-                b0, b, _ = search.best(criterion)
-                out.append(Choice(BEST_SUBSET, criterion, float("nan"), float("nan"), b0, b,
-                                  float("nan"), problem.names))
+        search = best_subsets(problem, rows=base, max_fits=self.max_fits, max_size=self.max_size,
+                              run=run, count_variance=True)
+        out = []
+        for criterion in ("aicc", "bic"):
+            b0, b, _ = search.best(criterion)
+            out.append(Choice(BEST_SUBSET, criterion, float("nan"), float("nan"), b0, b,
+                              float("nan"), problem.names))
         steps = stepwise(problem, direction="both", criterion="aic", rows=base, count_variance=True)
         out.append(Choice(STEPWISE, "aic", float("nan"), float("nan"), float(steps.intercept),
                           np.asarray(steps.coef, dtype=float), float("nan"), problem.names))

@@ -48,16 +48,17 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..core import kernels_leaps, kernels_search
+from ..defaults import SUBSET_EXACT_ROW_FITS, SUBSET_PROOF_MODELS, SUBSET_RISING_SIZES
 from ..core import kernels_subsets as kernels
 
 FIRST_PASS_MODELS = 1 << 18      # models the first Gaussian pass may visit (under a second)
 N_PARTS = 16                     # tasks of a longer Gaussian search (a fixed rule)
 TOP_DEPTH = 10                   # the shared top of the tree: nodes with more than p - 10 free terms
-DEFAULT_GAUSSIAN_MODELS = 200_000_000   # about ten minutes on one core for the hardest searches
+DEFAULT_GAUSSIAN_MODELS = SUBSET_PROOF_MODELS   # about ten minutes on one core for the hardest
 REL_MARGIN = 1e-9                # a branch is cut only when worse by more than rounding
 ABS_MARGIN = 1e-12               # ... relative to the total sum of squares
-EXHAUSTIVE_ROW_FITS = 2 * 10**8  # binomial / Poisson: fits x rows spent on exhaustive sizes
-RISING_SIZES = 5                 # criteria above their lowest for this many sizes: stop
+EXHAUSTIVE_ROW_FITS = SUBSET_EXACT_ROW_FITS  # binomial / Poisson: fits x rows on exhaustive sizes
+RISING_SIZES = SUBSET_RISING_SIZES  # criteria above their lowest for this many sizes: stop
 MAX_SWAP = 4                     # splicing exchanges up to this many terms at once
 SPLICE_ROUNDS = 50
 SPLICE_GAIN = 1e-9               # relative gain in log-likelihood an exchange must bring
@@ -65,8 +66,7 @@ FOUND_BY = ("exhaustive", "proved", "searched")
 ALIAS_TOL = 1e-10            # residual variance share below which a term is aliased
 NEWTON_TOL = 1e-8            # Newton decrement relative to |log-likelihood| + 1 (then one more step)
 NEWTON_MAX_ITER = 50
-FAMILY_CODES = {"gaussian": kernels.GAUSSIAN, "binomial": kernels.BINOMIAL,
-                "poisson": kernels.POISSON}
+SEARCHABLE = (kernels.GAUSSIAN, kernels.BINOMIAL, kernels.POISSON)   # family codes the kernels know
 
 
 @dataclass(frozen=True, eq=False)
@@ -189,7 +189,7 @@ def _here(fn, tasks, shared):
 def criterion_penalties(data, max_size, count_variance):
     """(3, max_size + 1): the charge of AIC, AICc and BIC for models of 0..max_size terms."""
     k = np.arange(max_size + 1, dtype=float) + 1.0
-    if count_variance and data.family == "gaussian":
+    if count_variance and data.family.has_scale:
         k = k + 1.0
     room = data.n - k - 1.0
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -251,7 +251,7 @@ def forward_steps(data, max_size, *, window=0, count_variance=False, constant=0.
     objective = np.zeros(max_size + 1)
     coef = np.zeros((max_size + 1, max_size + 1))
     reached, fits, bad = kernels_search.forward_path(
-        data.Xt, data.y, data.w, data.offset, FAMILY_CODES[data.family], data.intercept_start,
+        data.Xt, data.y, data.w, data.offset, data.family.code, data.intercept_start,
         max_size, tol, max_iter, alias_tol, (max_size + 2) * data.y.shape[0] <= stored_limit,
         constant, penalty, int(window), added, objective, coef)
     return ForwardSteps(added[:reached].copy(), objective[:reached + 1].copy(),
@@ -300,7 +300,7 @@ def splice_sizes(data, sizes, starts, slots_, below=None, *, tol=NEWTON_TOL,
     per size as (members, beta, objective), fits, fits that did not
     converge, fits per size)``.
     """
-    fam = FAMILY_CODES[data.family]
+    fam = data.family.code
     d = data
     best, per_size = {}, {}
     bad = 0

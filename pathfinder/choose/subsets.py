@@ -84,15 +84,12 @@ from functools import lru_cache
 
 import numpy as np
 import pandas as pd
-from scipy.special import gammaln
 
 from ..core import kernels_subsets as kernels
-from ..core.families import get_family, null_intercept
-from ..core.glm import fit_glm
+from ..core.families import Family, get_family, null_intercept
 from ..errors import InputError
 from . import subset_search as search
-from .criteria import _log_likelihood
-from .cv import Problem
+from .problem import Problem, refit
 
 CRITERIA = ("aic", "aicc", "bic")
 GAUSSIAN_CRITERIA = ("adjusted_r2", "cp")
@@ -108,7 +105,6 @@ MAX_TASKS = 256
 STORED_VECTORS = 1 << 22     # GLM search: keep per-depth working vectors up to 2 x 32 MB
 CONFIDENCE = 0.95
 SATURATED = 0.999            # deviance explained at which a binomial fit counts as separated
-_FAMILY_CODES = search.FAMILY_CODES
 
 
 # ---- the rows searched, prepared once --------------------------------------------
@@ -117,7 +113,7 @@ _FAMILY_CODES = search.FAMILY_CODES
 class SearchData:
     """The rows a search works on, standardised; sent once to every worker."""
 
-    family: str
+    family: Family
     names: tuple
     Xt: np.ndarray            # (p, n) standardised predictors, one per row of the array
     y: np.ndarray
@@ -154,10 +150,10 @@ def _as_rows(rows, n_all):
 
 def prepare(problem: Problem, rows=None) -> SearchData:
     """Standardise the rows to search once, and check what a search needs."""
-    family = str(problem.family).lower()
-    if family not in _FAMILY_CODES:
-        raise InputError(f"unknown family {problem.family!r}; use gaussian, binomial or poisson")
-    fam = get_family(family)
+    fam = get_family(problem.family)
+    if fam.code not in search.SEARCHABLE:
+        raise InputError(f"the subset searches do not cover the {fam.name} family yet; use "
+                         "the penalised paths and stability selection, or --no-subsets")
     X_all = np.asarray(problem.X, dtype=float)
     if X_all.ndim != 2:
         raise InputError(f"the predictors must form a table (rows x columns), got shape {X_all.shape}")
@@ -173,12 +169,7 @@ def prepare(problem: Problem, rows=None) -> SearchData:
     if not np.all(np.isfinite(X)) or not np.all(np.isfinite(y)):
         raise InputError("the predictors or the response contain missing or infinite values; "
                          "drop or fill those rows before a subset search")
-    if family == "binomial" and (y.min() < 0 or y.max() > 1):
-        raise InputError("a binomial response must lie between 0 and 1 (presence/absence or a "
-                         "proportion); check the response column or choose another family")
-    if family == "poisson" and y.min() < 0:
-        raise InputError("a Poisson response must be a non-negative count; check the response "
-                         "column or choose another family")
+    fam.check_response(y, where="the response column")
     if problem.weights is None:
         w = np.ones(n_rows)
     else:
@@ -199,12 +190,12 @@ def prepare(problem: Problem, rows=None) -> SearchData:
     b0 = null_intercept(fam, y, w, off)
     null_deviance = fam.deviance(y, fam.inverse_link(b0 + off), w)
     gram, y_mean = None, 0.0
-    if family == "gaussian":
+    if fam.least_squares:
         z = y - off
         y_mean = float(w @ z / total)
         augmented = np.vstack([Xt, z - y_mean])                    # (p + 1, n), centred
         gram = (augmented * w) @ augmented.T
-    return SearchData(family, names, Xt, y, w, off, center, scale, int(np.count_nonzero(w > 0)),
+    return SearchData(fam, names, Xt, y, w, off, center, scale, int(np.count_nonzero(w > 0)),
                       float(b0), float(null_deviance), gram, y_mean)
 
 
@@ -212,7 +203,7 @@ def prepare(problem: Problem, rows=None) -> SearchData:
 
 def _n_parameters(k_terms, family, count_variance):
     """Parameters counted: the terms, the intercept, and the Gaussian variance when asked."""
-    extra = 1.0 if count_variance and family == "gaussian" else 0.0
+    extra = 1.0 if count_variance and family.has_scale else 0.0
     return np.asarray(k_terms, dtype=float) + 1.0 + extra
 
 
@@ -232,7 +223,7 @@ def _check_criterion(criterion, family, allowed=CRITERIA + GAUSSIAN_CRITERIA):
     criterion = str(criterion).lower()
     if criterion not in allowed:
         raise InputError(f"unknown criterion {criterion!r}; use one of {', '.join(allowed)}")
-    if criterion in GAUSSIAN_CRITERIA and family != "gaussian":
+    if criterion in GAUSSIAN_CRITERIA and not family.least_squares:
         raise InputError(f"{criterion} applies to a Gaussian response only; use aic, aicc or bic")
     return criterion
 
@@ -299,7 +290,7 @@ def run_block(data: SearchData, task: SearchTask) -> BlockResult:
     scores = np.full(total, np.nan)                     # NaN marks an empty slot
     members = np.full((total, max(task.max_size, 1)), -1, dtype=np.int64)
     start = np.asarray(task.start, dtype=np.int64)
-    if data.family == "gaussian":
+    if data.family.least_squares:
         coef = np.empty((total, 0))
         visited = kernels.gaussian_search(data.gram, start, task.count, task.max_size, ALIAS_TOL,
                                           slot_start, cap, scores, members)
@@ -307,7 +298,7 @@ def run_block(data: SearchData, task: SearchTask) -> BlockResult:
     else:
         coef = np.zeros((total, task.max_size + 1))
         visited, not_converged = kernels.glm_search(
-            data.Xt, data.y, data.w, data.offset, _FAMILY_CODES[data.family], data.intercept_start,
+            data.Xt, data.y, data.w, data.offset, data.family.code, data.intercept_start,
             start, task.count, task.max_size, NEWTON_TOL, NEWTON_MAX_ITER, ALIAS_TOL,
             (task.max_size + 1) * data.y.shape[0] <= STORED_VECTORS, slot_start, cap, scores,
             members, coef)
@@ -357,7 +348,7 @@ def _pad(a, width, value):
 def search_tasks(p, max_size, family, keep_per_size):
     """The blocks an exhaustive search is cut into (a fixed rule: the result never depends on it)."""
     total = count_subsets(p, max_size)
-    block = GAUSSIAN_BLOCK if family == "gaussian" else GLM_BLOCK
+    block = GAUSSIAN_BLOCK if family.least_squares else GLM_BLOCK
     n_tasks = min(MAX_TASKS, max(1, -(-total // block)))
     block = -(-total // n_tasks)
     return [SearchTask(_subset_at(pos, p, max_size), min(block, total - pos), max_size, keep_per_size)
@@ -377,8 +368,7 @@ def _size_limit(data: SearchData) -> int:
 
 def _log_constant(data: SearchData) -> float:
     """Log-likelihood less the kernels' objective (Poisson: -sum w log y!; binomial 0/1: 0)."""
-    if data.family == "poisson":
-        return -float(data.w @ gammaln(data.y + 1.0))
+    return data.family.log_likelihood_constant(data.y, data.w)
     return 0.0
 
 
@@ -539,7 +529,7 @@ def best_subsets(problem: Problem, *, max_size=None, rows=None, keep_per_size=10
     budget = None if max_fits is None else _check_int(max_fits, "max_fits", 1)
     limit = _size_limit(data)
     notes = []
-    if data.family == "gaussian":
+    if data.family.least_squares:
         parts, top, found_by, visited, added = _least_squares_search(
             data, requested, keep, search.DEFAULT_GAUSSIAN_MODELS if budget is None else budget, run)
         not_converged, exact = 0, top
@@ -591,32 +581,34 @@ def _search_notes(data, requested, top, limit, found_by, exact, budget, table, n
     notes, p = [], data.p
     if requested is not None and requested < limit:
         notes.append(f"only subsets of up to {top} of the {p} terms were searched (a largest size "
-                     f"was asked for); leave the largest size unset to cover every size")
+                     f"was asked for); leave the largest size (--subset-sizes, max_size=) unset "
+                     "to cover every size")
     elif top < p and limit < p:
         notes.append(f"models were limited to {limit} terms so that each leaves at least one "
                      f"residual degree of freedom ({data.n} rows)")
     elif top < p:
         notes.append(f"sizes 0 to {top} of {p} were covered: AIC, AICc and BIC had all risen for "
                      f"{search.RISING_SIZES} sizes running by then; ask for a largest size of "
-                     f"{p} to cover every size")
+                     f"{p} (--subset-sizes {p}, or max_size=) to cover every size")
     searched = [s for s in range(top + 1) if found_by[s] == "searched"]
     if searched:
         span = _span(searched)
-        if data.family == "gaussian":
+        if data.family.least_squares:
             limit_used = budget or search.DEFAULT_GAUSSIAN_MODELS
             notes.append(f"the branch and bound stopped at its budget of {limit_used:,} models "
                          f"before proving sizes {span}; those sizes were searched by splicing, "
-                         "not proved; raise max_fits to prove them")
+                         "not proved; raise the subset budget (--subset-budget N, or max_fits=) to prove them")
         else:
             what = (f"every subset of up to {exact} terms was fitted (exhaustive); "
                     if exact >= 0 else "")
-            lift = ("raise max_fits to fit more sizes exhaustively" if budget is not None else
+            lift = ("raise the subset budget (--subset-budget N, or max_fits=) to fit more sizes "
+                    "exhaustively" if budget is not None else
                     "subsets beyond that many fits are not compared one by one")
             notes.append(f"{what}sizes {span} were searched by splicing from forward stepwise "
                          f"and the neighbouring sizes: the best found, not proved best; {lift}")
         notes.append("Akaike weights of models left out cannot be bounded closely at searched "
                      "sizes (see weight_left_out)")
-    if data.family == "binomial" and (table["deviance_explained"] >= SATURATED).any():
+    if data.family.binary and (table["deviance_explained"] >= SATURATED).any():
         notes.append("some subsets separate presences from absences almost perfectly; their "
                      "coefficients run towards infinity and the criteria favour them, so check "
                      "those terms before trusting the choice")
@@ -652,14 +644,14 @@ def _full_log_likelihood(data: SearchData) -> float:
     if data.n - 2 < data.p:
         return float("nan")
     cols = np.arange(data.p, dtype=np.int64)
-    if data.family == "gaussian":
+    if data.family.least_squares:
         b = _least_squares(data.gram, cols)
         rss = max(float(data.gram[-1, -1] - b @ data.gram[cols, -1]), 0.0)
         total = data.w.sum()
         return -0.5 * total * (np.log(2 * np.pi * rss / total) + 1.0) if rss > 0 else np.inf
     beta = np.zeros(data.p + 1)
     beta[0] = data.intercept_start
-    f, _ = kernels.fit_subset(data.Xt, data.y, data.w, data.offset, _FAMILY_CODES[data.family],
+    f, _ = kernels.fit_subset(data.Xt, data.y, data.w, data.offset, data.family.code,
                               cols, beta, NEWTON_TOL, NEWTON_MAX_ITER, ALIAS_TOL)
     return float(f) + _log_constant(data)
 
@@ -670,7 +662,7 @@ def _original_units(data: SearchData, sizes, members, coef_std):
     intercepts, coefs = np.empty(m), np.zeros((m, p))
     for i in range(m):
         cols = members[i, :sizes[i]]
-        if data.family == "gaussian":
+        if data.family.least_squares:
             b = _least_squares(data.gram, cols)
             coefs[i, cols] = b / data.scale[cols]
             intercepts[i] = data.y_mean - coefs[i, cols] @ data.center[cols]
@@ -700,7 +692,7 @@ def _model_table(data: SearchData, sizes, members, intercepts, coefs, count_vari
         hi = min(m, lo + 256)
         eta = X @ coefs[lo:hi].T + intercepts[lo:hi] + data.offset[:, None]
         mu = fam.inverse_link(eta)
-        ll[lo:hi] = _log_likelihood(fam.name, data.y, mu, data.w)
+        ll[lo:hi] = fam.log_likelihood(data.y, mu, data.w)
         dev[lo:hi] = (data.w[:, None] * fam.unit_deviance(data.y[:, None], mu)).sum(axis=0)
     k_params = _n_parameters(sizes, data.family, count_variance)
     table = pd.DataFrame({
@@ -714,7 +706,7 @@ def _model_table(data: SearchData, sizes, members, intercepts, coefs, count_vari
     with np.errstate(divide="ignore", invalid="ignore"):
         r2 = 1.0 - dev / data.null_deviance if data.null_deviance > 0 else np.full(m, np.nan)
     table["deviance_explained"] = r2
-    if data.family == "gaussian":
+    if data.family.least_squares:
         n = data.n
         with np.errstate(divide="ignore", invalid="ignore"):
             table["adjusted_r2"] = np.where(n - sizes - 1 > 0,
@@ -764,7 +756,7 @@ class SubsetSearch:
     coefficients: np.ndarray
     intercepts: np.ndarray
     columns: tuple
-    family: str
+    family: Family
     names: tuple
     n: int
     p: int
@@ -811,7 +803,7 @@ class SubsetSearch:
         original units, zero for the terms left out.
         """
         columns = self.columns[self.chosen_row(criterion)]
-        intercept, coef = _refit(self.problem, self.rows, np.array(columns, dtype=np.int64))
+        intercept, coef = refit(self.problem, self.rows, np.array(columns, dtype=np.int64), ridge=0.0)
         return intercept, coef, tuple(self.names[j] for j in columns)
 
     def akaike(self, criterion="aicc") -> pd.DataFrame:
@@ -865,17 +857,6 @@ class SubsetSearch:
         return float(left / (listed + left))
 
 
-def _refit(problem: Problem, rows, columns) -> tuple[float, np.ndarray]:
-    """Maximum-likelihood refit on ``columns`` over ``rows``: (intercept, coef of length p)."""
-    rows = np.arange(problem.X.shape[0]) if rows is None else rows
-    X = np.asarray(problem.X, dtype=float)
-    coef = np.zeros(X.shape[1])
-    fit = fit_glm(X[np.ix_(rows, columns)], np.asarray(problem.y, dtype=float)[rows], problem.family,
-                  offset=problem.part(problem.offset, rows), weights=problem.part(problem.weights, rows))
-    coef[columns] = fit.coef
-    return float(fit.intercept), coef
-
-
 # ---- stepwise ------------------------------------------------------------------
 
 @dataclass(frozen=True, eq=False)
@@ -904,14 +885,9 @@ class _Fitter:
 
     def __init__(self, data: SearchData, count_variance: bool):
         self.data = data
-        self.code = _FAMILY_CODES[data.family]
+        self.code = data.family.code
         self.count_variance = count_variance
-        fam = data.family
-        y, w = data.y, data.w
-        if fam == "poisson":
-            self.constant = -float(w @ gammaln(y + 1.0))
-        else:
-            self.constant = 0.0
+        self.constant = data.family.log_likelihood_constant(data.y, data.w)
 
     def fit(self, members, start):
         """(log-likelihood, standardised coefficients) of the subset ``members``."""
@@ -920,7 +896,7 @@ class _Fitter:
         f, _ = kernels.fit_subset(d.Xt, d.y, d.w, d.offset, self.code,
                                   np.asarray(members, dtype=np.int64), beta, NEWTON_TOL,
                                   NEWTON_MAX_ITER, ALIAS_TOL)
-        if d.family == "gaussian":
+        if d.family.least_squares:
             total = d.w.sum()
             rss = max(-2.0 * f, 0.0)
             ll = -0.5 * total * (np.log(2 * np.pi * rss / total) + 1.0) if rss > 0 else np.inf
@@ -1002,8 +978,8 @@ def stepwise(problem: Problem, *, direction="forward", criterion="aic", rows=Non
                           terms=";".join(data.names[t] for t in sorted(members)),
                           log_likelihood=ll, value=value))
     chosen = np.array(sorted(members), dtype=np.int64)
-    intercept, coef = _refit(problem, None if rows is None else _as_rows(rows, problem.X.shape[0]),
-                             chosen)
+    intercept, coef = refit(problem, None if rows is None else _as_rows(rows, problem.X.shape[0]),
+                            chosen, ridge=0.0)
     return StepwiseResult(pd.DataFrame(steps), tuple(data.names[j] for j in chosen), intercept, coef,
                           criterion, direction, value, stopped)
 
@@ -1023,7 +999,7 @@ def forward_path(problem: Problem, *, rows=None, max_size=None,
     data = prepare(problem, rows)
     limit = _size_limit(data)
     top = limit if max_size is None else min(limit, _check_int(max_size, "the largest size", 0))
-    if data.family == "gaussian":
+    if data.family.least_squares:
         added, _ = search.least_squares_forward(data.gram, top, ALIAS_TOL)
         return _forward_table(data, [added[:s] for s in range(top + 1)], None, count_variance)
     steps = search.forward_steps(data, top, tol=NEWTON_TOL, max_iter=NEWTON_MAX_ITER,

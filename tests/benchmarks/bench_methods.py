@@ -45,7 +45,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import common  # noqa: E402,F401  (puts the repository on the path)
 
 from pathfinder import fit_path  # noqa: E402
-from pathfinder.choose.cv import Problem  # noqa: E402
+from pathfinder.choose.problem import Problem  # noqa: E402
 from pathfinder.choose import relaxed  # noqa: E402
 from pathfinder.choose.subsets import best_subsets, forward_path  # noqa: E402
 

@@ -36,7 +36,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from common import ar_design, side_by_side  # noqa: E402
 
-from pathfinder.choose.cv import Problem  # noqa: E402
+from pathfinder.choose.problem import Problem  # noqa: E402
 from pathfinder.choose.subsets import best_subsets, count_subsets  # noqa: E402
 
 REPEATS = 3

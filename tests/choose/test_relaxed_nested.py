@@ -124,7 +124,7 @@ def test_best_subset_redone_inside_outer_folds_does_not_beat_the_null_on_noise()
     problem = _problem("gaussian", n=120, p=12, seed=21, signal=False)
     outer = random_folds(problem.n, 5, seed=4)
     rows = nested_cv(problem, outer.splits(), FoldPlan(k=5), seed=5, inner_k=3, mixes=(1.0,),
-                     n_penalties=20, relaxed_lasso=False, selectors=(SubsetSelector(budget=5_000),))
+                     n_penalties=20, relaxed_lasso=False, selectors=(SubsetSelector(),))
     null_scores = [mean_deviance(problem.y[test], np.full(len(test), problem.y[train].mean()), "gaussian")
                    for train, test in outer.splits()]
     for method, rule in (("best subset", "aicc"), ("best subset", "bic"), ("stepwise", "aic")):
@@ -142,7 +142,7 @@ def test_held_out_predictions_come_from_each_outer_folds_own_choice():
     outer = random_folds(problem.n, 3, seed=1)
     rows, predictions = nested_cv(problem, outer.splits(), FoldPlan(k=3), seed=5, inner_k=3,
                                   mixes=(1.0,), n_penalties=12, relaxed_lasso=False,
-                                  selectors=(SubsetSelector(budget=100),), keep_predictions=True)
+                                  selectors=(SubsetSelector(),), keep_predictions=True)
     assert set(predictions) == set(zip(rows.method, rows.rule))
     for (method, rule), held in predictions.items():
         assert np.isfinite(held).all()

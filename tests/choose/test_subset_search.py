@@ -20,7 +20,7 @@ import pytest
 import statsmodels.api as sm
 
 from pathfinder.choose import subset_search
-from pathfinder.choose.cv import Problem
+from pathfinder.choose.problem import Problem
 from pathfinder.choose.subsets import best_subsets, forward_path, stepwise, subset_choice
 from pathfinder.parallel import Backend, run_tasks
 
@@ -255,3 +255,25 @@ def test_best_subset_on_noise_does_not_beat_the_null_on_outer_folds():
     diff = np.array(mine) - np.array(null)
     se = diff.std(ddof=1) / np.sqrt(5)
     assert diff.mean() >= -2 * se
+
+
+def test_by_size_best_subset_fits_at_least_as_well_as_the_others_where_proved():
+    """Hastie, Tibshirani & Tibshirani (2020) compare these four size by size; on the data
+    searched, a proved best subset is never beaten at its size (definition of best subset)."""
+    from pathfinder.choose.by_size import compare_by_size
+    from pathfinder.choose.problem import Problem
+    from pathfinder.choose.subsets import best_subsets
+    from pathfinder.core import fit_path
+
+    rng = np.random.default_rng(3)
+    X = rng.standard_normal((120, 8))
+    y = X[:, :3] @ np.array([1.0, -0.8, 0.5]) + rng.standard_normal(120)
+    problem = Problem(X, y, "gaussian", tuple(f"x{j}" for j in range(8)))
+    table = compare_by_size(problem, best_subsets(problem), fit_path(X, y, names=problem.names))
+    for k, rows in table.groupby("k"):
+        best = rows[rows.method == "best subset"]
+        if len(best) and best.found_by.iloc[0] in ("proved", "exhaustive"):
+            assert (rows.log_likelihood <= best.log_likelihood.iloc[0] + 1e-8).all(), k
+        lasso, refit = rows[rows.method == "lasso"], rows[rows.method == "relaxed lasso (refit)"]
+        if len(lasso):
+            assert refit.log_likelihood.iloc[0] >= lasso.log_likelihood.iloc[0] - 1e-9

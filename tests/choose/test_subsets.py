@@ -21,7 +21,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from pathfinder.choose import subset_search, subsets
-from pathfinder.choose.cv import Problem
+from pathfinder.choose.problem import Problem
 from pathfinder.choose.subsets import (akaike_table, best_subsets, count_subsets, model_average,
                                        stepwise, subset_choice, variable_importance)
 from pathfinder.errors import InputError
@@ -217,7 +217,7 @@ def test_a_search_once_refused_covers_every_size_and_a_budget_is_stated():
     # A budget too small to prove every size is said in words, with how to lift it.
     short = best_subsets(problem, keep_per_size=2, max_fits=200)
     assert "searched" in set(short.sizes.found_by)
-    assert any("budget of 200 models" in note and "raise max_fits" in note for note in short.notes)
+    assert any("budget of 200 models" in note and "--subset-budget" in note for note in short.notes)
     assert set(short.table.found_by) == set(short.sizes.found_by)
     # A largest size asked for is stated too.
     capped = best_subsets(problem, max_size=2)

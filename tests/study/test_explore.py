@@ -145,20 +145,18 @@ def test_parquet_is_read_by_the_columns_the_run_uses(tmp_path, monkeypatch):
     assert set(asked["columns"]) == {"c0", "c1", "present", "x", "y"}
 
 
-def test_long_binomial_tables_get_a_smaller_default_subset_search(monkeypatch):
-    # Each binomial subset model is fitted on every row, so the default budget
-    # holds models x rows; pretend 160 rows is long by lowering that product.
-    from pathfinder.choose import selectors
-
-    # 8 predictors (c0-c5, x, y): 1 + 8 + 28 = 37 models reach size 2, 93 reach size 3
-    monkeypatch.setattr(selectors, "SUBSET_ROW_MODELS", 160 * 37)
-    assert selectors.default_subset_budget("binomial", 160) == 37
-    assert selectors.default_subset_budget("gaussian", 160) == selectors.SUBSET_MODELS
+def test_the_subset_search_covers_the_sizes_and_says_how_each_was_found():
+    # 8 predictors at 160 rows: every subset is affordable, so every size is compared
+    # exhaustively; with a budget of 20 fits only sizes 0 and 1 (9 models) are, and the
+    # rest are searched, which the table and the notes must say (issue: no silent cap).
     quick = dict(response="present", folds=3, mixes=(1.0,), grid_per_decade=4, nested=False,
                  stability=False, seed=2)
     study = explore(_table(), StudyOptions(**quick))
-    assert any("limited to 37 models (subsets of up to 2 terms)" in note for note in study.notes)
-    assert study.tables["subsets"]["k"].max() == 2
-    given = explore(_table(), StudyOptions(**quick, subset_budget=100))
-    assert not any("limited to" in note for note in given.notes)       # a budget given is kept
-    assert given.tables["subsets"]["k"].max() == 3                 # 93 <= 100 models
+    sizes = study.tables["subset_sizes"]
+    assert set(sizes.found_by) == {"exhaustive"}
+    assert sizes.k.max() == len(study.design.names) or any("were covered" in n for n in study.notes)
+    small = explore(_table(), StudyOptions(**quick, subset_budget=20))
+    found = small.tables["subset_sizes"].set_index("k").found_by
+    assert found[0] == found[1] == "exhaustive" and (found[found.index >= 2] == "searched").all()
+    assert any("searched by splicing" in n and "--subset-budget" in n for n in small.notes)
+    assert set(small.tables["subsets"].found_by) == {"exhaustive", "searched"}
