@@ -27,7 +27,7 @@ from .choose.cv import cross_validate
 from .core.families import get_family
 from .choose.folds import make_folds
 from .choose.metrics import METRICS, metrics_for as family_metrics
-from .choose.problem import Problem, method_name
+from .choose.problem import BEST_SUBSET, Problem, method_name
 from .choose.nested import FoldPlan, choices, comparison_table, held_out_predictions, nested_cv, recommend
 from .choose.folds import block_of
 from .choose.relaxed import relaxed_lasso
@@ -316,9 +316,12 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
     comparison = None
     if outer is not None:
         comparison = comparison_table(full_choices, outer, options.metric)
+        if "subset_sizes" in extra_tables:
+            comparison = _with_subset_proof(comparison, extra_tables["subset_sizes"])
         result_tables["comparison"] = comparison
         result_tables["outer_folds"] = outer
     chosen = recommend(comparison, full_choices)
+    budget_notes.extend(_unproved_choice_note(chosen, comparison))
     result_tables.update(stages.run("describing the chosen model", lambda _: _chosen_tables(
         chosen, problem, survey, design, folds, cv, splits, outer_predictions)))
     reading = tuple(info.notes) if info is not None else ()
@@ -332,6 +335,27 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
         backend=describe(backend), warnings=tuple(survey.warnings) + fit_warnings, notes=notes,
         stability=stability, data_sends=session.sends,
     )
+
+
+def _with_subset_proof(comparison: pd.DataFrame, sizes: pd.DataFrame) -> pd.DataFrame:
+    """comparison.csv with ``found_by`` beside each best-subset row: how its size was found."""
+    found = dict(zip(sizes["k"].astype(int), sizes["found_by"].astype(str)))
+    out = comparison.copy()
+    out["found_by"] = [found.get(int(k), "") if m == BEST_SUBSET else ""
+                       for m, k in zip(out["method"], out["n_terms"])]
+    return out
+
+
+def _unproved_choice_note(chosen, comparison) -> tuple:
+    """A note when the suggested model is a best subset whose size was not proved best."""
+    if comparison is None or "found_by" not in comparison.columns or chosen.method != BEST_SUBSET:
+        return ()
+    row = comparison[(comparison["method"] == chosen.method) & (comparison["rule"] == chosen.rule)]
+    if len(row) and row["found_by"].iloc[0] == "searched":
+        return (f"the suggested model is the best subset of {len(chosen.terms)} terms that the "
+                "search found, not proved best at that size (see subset_sizes.csv); "
+                "--subset-budget N searches exactly for longer",)
+    return ()
 
 
 def _averaged_table(search, akaike, names) -> pd.DataFrame:

@@ -1339,3 +1339,42 @@ def site_map(
     if note:
         subtitle = f"{subtitle} ({note})"
     return mark.properties(width=width, height=height, title=alt.Title(title, subtitle=subtitle))
+
+
+BY_SIZE_COLOURS = {"best subset": theme.LOCH, "stepwise (forward)": theme.OCHRE,
+                   "lasso": theme.HEATHER, "relaxed lasso (refit)": theme.LICHEN}
+
+
+def fit_by_size(by_size: pd.DataFrame):
+    """Log-likelihood on all sites against the number of terms, one line per way of choosing.
+
+    Best subset is drawn solid where its size was proved (or every subset
+    compared) and hollow where it was only searched.
+    """
+    require(by_size, ["k", "method", "log_likelihood"], "by_size")
+    frame = by_size.copy()
+    frame["how"] = np.where(frame.get("found_by", pd.Series("", index=frame.index)).astype(str)
+                            == "searched", "searched, not proved", "proved or not a search")
+    data = inline(frame[["k", "method", "log_likelihood", "how", "terms"]].fillna(""))
+    methods = [m for m in BY_SIZE_COLOURS if m in set(frame["method"])] + sorted(
+        set(frame["method"]) - set(BY_SIZE_COLOURS))
+    colour = alt.Color("method:N", title="chosen by",
+                       scale=alt.Scale(domain=methods,
+                                       range=[BY_SIZE_COLOURS.get(m, theme.STONE) for m in methods]))
+    x = alt.X("k:Q", axis=alt.Axis(title="terms in the model", format="d"))
+    y = alt.Y("log_likelihood:Q", axis=alt.Axis(title="log-likelihood on all sites"),
+              scale=alt.Scale(zero=False))
+    lines = alt.Chart(data).mark_line(strokeWidth=1.5).encode(x=x, y=y, color=colour)
+    points = alt.Chart(data).mark_point(size=36, filled=True).encode(
+        x=x, y=y, color=colour,
+        shape=alt.Shape("how:N", title="best subset",
+                        scale=alt.Scale(domain=["proved or not a search", "searched, not proved"],
+                                        range=["circle", "triangle"])),
+        tooltip=[alt.Tooltip("method:N"), alt.Tooltip("k:Q", title="terms"),
+                 alt.Tooltip("log_likelihood:Q", format=".5~g"), alt.Tooltip("how:N"),
+                 alt.Tooltip("terms:N")])
+    return alt.layer(lines, points).properties(
+        width=WIDE, height=260,
+        title=alt.Title("How well each way of choosing fits, size by size",
+                        subtitle="On the sites the models were chosen from; held-out skill is in "
+                                 "the comparison above."))

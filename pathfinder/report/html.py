@@ -39,7 +39,7 @@ from . import charts, methods, summary, theme, vendor
 TABLE_NAMES = (
     "coefficients", "path", "cv", "picks", "criteria", "folds", "correlations", "comparison",
     "outer_folds", "stability", "stability_path", "subsets", "stepwise", "importance", "vif", "sites",
-    "response_curves", "rug", "chosen", "skill",
+    "response_curves", "rug", "chosen", "skill", "subset_sizes", "by_size",
 )
 
 NOT_IN_RUN = "not part of this run"
@@ -533,6 +533,7 @@ def section_compare(tables, record) -> Section:
                         f"{_num(c['outer_mean'])} &plusmn; {_num(c['outer_se'], 3)}",
                         _num(c.get("optimism"), 3),
                         _num(c.get("jaccard"), 3),
+                        FOUND_BY_WORDS.get(str(c.get("found_by", "")), ""),
                         _terms_text(c.get("terms", "")),
                     ]
                 )
@@ -545,6 +546,7 @@ def section_compare(tables, record) -> Section:
                         "outer-fold error (± SE)",
                         "optimism",
                         "agreement across folds",
+                        "subset of that size",
                         "terms chosen on all sites",
                     ],
                     rows,
@@ -596,12 +598,54 @@ def section_compare(tables, record) -> Section:
     if subsets is None:
         s.parts.append(_absent("Best-subset and stepwise search (subsets.csv)"))
     else:
+        s.parts.extend(_subset_search_parts(tables, record))
         s.parts.append(_figure("akaike_weights", charts.akaike_weights, subsets))
     if importance is None:
         s.parts.append(_absent("Relative importance from Akaike weights (importance.csv)"))
     else:
         s.parts.append(_figure("importance", charts.importance_bars, importance))
     return s
+
+
+FOUND_BY_WORDS = {"exhaustive": "every subset compared", "proved": "proved best",
+                  "searched": "searched, not proved"}
+SEARCH_WORDS = ("subset", "splicing", "branch and bound", "sizes")
+
+
+def _subset_search_parts(tables, record) -> list:
+    """How the best subset of each size was found, the search's own notes, and the fit by size."""
+    parts = []
+    sizes = tables.get("subset_sizes")
+    if sizes is not None and {"k", "found_by"} <= set(sizes.columns):
+        groups = []
+        for how, words in FOUND_BY_WORDS.items():
+            ks = sizes.loc[sizes["found_by"].astype(str) == how, "k"].astype(int).tolist()
+            if ks:
+                groups.append(f"{words} at {_ranges(ks)} terms")
+        visited = sizes["models_visited"].sum() if "models_visited" in sizes.columns else None
+        parts.append(_para(
+            f"Best subset of every size from 0 to {int(sizes['k'].max())} terms: "
+            + "; ".join(groups)
+            + (f" ({int(visited):,} models fitted or bounded in all)." if visited is not None else ".")
+            + " Where a size was only searched, a better subset of that size may exist."))
+    notes = [n for n in ((_get(record, "notes") if record else None) or [])
+             if any(w in str(n) for w in SEARCH_WORDS) and "search" in str(n)]
+    if notes:
+        parts.append(_list([_esc(n) for n in notes]))
+    by_size = tables.get("by_size")
+    if by_size is not None:
+        parts.append(_figure("fit_by_size", charts.fit_by_size, by_size))
+    return parts
+
+
+def _ranges(ks) -> str:
+    """[0, 1, 2, 5, 6] -> '0-2, 5-6'."""
+    out, start = [], ks[0]
+    for a, b in zip(ks, ks[1:] + [None]):
+        if b != a + 1:
+            out.append(f"{start}" if start == a else f"{start}-{a}")
+            start = b
+    return ", ".join(out)
 
 
 def _response_label(record) -> str:

@@ -42,7 +42,7 @@ from . import (
     small_run,
 )
 
-SECTION_TITLES = ["1 Data", "2 Correlated predictors", "3 Coefficient paths", "4 Cross-validation",
+SECTION_TITLES = ["At a glance", "1 Data", "2 Correlated predictors", "3 Coefficient paths", "4 Cross-validation",
                   "5 Stability", "6 Shrinkage against subsets", "7 The chosen model", "8 Space",
                   "9 Methods for a paper", "10 Run record", "11 Cautions"]
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
