@@ -299,6 +299,7 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
             if 1.0 in cv.fits:
                 extra_tables["by_size"] = compare_by_size(problem, search, cv.fits[1.0])
             budget_notes.extend(search.notes)
+            budget_notes.append(_akaike_note(search, table))
     fit_warnings = tuple(dict.fromkeys(str(w.message) for w in caught
                                        if issubclass(w.category, FitWarning)))
 
@@ -356,6 +357,18 @@ def _unproved_choice_note(chosen, comparison) -> tuple:
                 "search found, not proved best at that size (see subset_sizes.csv); "
                 "--subset-budget N searches exactly for longer",)
     return ()
+
+
+def _akaike_note(search, akaike) -> str:
+    """What the Akaike weights are shares of, and how much the models not listed could hold."""
+    left = search.weight_left_out("aicc")
+    text = (f"Akaike weights (AICc) are shares among the {len(akaike)} models listed in "
+            f"subsets.csv (the best {search.keep_per_size} of each size, {search.n_models:,} "
+            f"models fitted or bounded in the search)")
+    if np.isfinite(left):
+        text += (f"; the models not listed could hold at most {left:.2g} of the weight "
+                 "(Burnham & Anderson 2002, section 4.2)")
+    return text
 
 
 def _averaged_table(search, akaike, names) -> pd.DataFrame:
