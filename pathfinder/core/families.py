@@ -134,8 +134,14 @@ class Family:
         return w * (y - mu)
 
     def working_weights(self, eta, w):
-        """The IRLS weights ``w V(mu)`` alone, the variance floored as in :meth:`evaluate`."""
+        """The IRLS weights ``w V(mu)`` alone, the variance floored as in :meth:`evaluate`
+        (Fisher's weights, which do not depend on the response)."""
         return self.evaluate(np.zeros(eta.shape[0]), np.ascontiguousarray(eta), w)[1]
+
+    def newton_weights(self, y, eta, w):
+        """The weights :meth:`evaluate` gives (the observed information of each row's
+        linear predictor); for the canonical links these are :meth:`working_weights`."""
+        return self.working_weights(eta, w)
 
     # ---- the intercept-only model ----------------------------------------
     def start_intercept(self, ybar: float) -> float:
@@ -346,9 +352,12 @@ class NegativeBinomial(Family):
     :func:`pathfinder.core.glm.estimate_theta`). Arithmetic that needs theta
     refuses to run while it is still unknown.
 
-    The log link is not canonical for this family, so the IRLS weights are
-    ``w mu / (1 + mu / theta)``, the working residuals ``(y - mu) / mu`` and
-    the scores ``w (y - mu) / (1 + mu / theta)`` (Fisher scoring).
+    The log link is not canonical for this family: the scores are
+    ``w (y - mu) / (1 + mu / theta)``, Fisher's weights (:meth:`working_weights`,
+    used for degrees of freedom and the start of the grid) ``w mu / (1 + mu /
+    theta)``, and the weights :meth:`evaluate` gives the fits (:meth:`newton_weights`)
+    are the observed information ``w theta mu (theta + y) / (theta + mu)^2``,
+    positive for every count, so that the fits take true Newton steps.
     """
 
     name, link_name, code = "negative_binomial", "log", NEGATIVE_BINOMIAL_CODE
@@ -402,6 +411,11 @@ class NegativeBinomial(Family):
     def working_weights(self, eta, w):
         mu = np.exp(np.minimum(eta, self.row_bound))
         return w * np.maximum(mu, 1e-10) / (1.0 + mu / self._theta())
+
+    def newton_weights(self, y, eta, w):
+        theta = self._theta()
+        mu = np.exp(np.minimum(eta, self.row_bound))
+        return w * np.maximum(mu, 1e-10) * theta * (theta + y) / (theta + mu) ** 2
 
     def log_likelihood(self, y, mu, w):
         """Full log-likelihood: ``log Gamma(y + theta) - log Gamma(theta) - log y!
@@ -477,15 +491,21 @@ def theta_ml(y, mu, w=None, start=None, tol=1e-10, max_iter=100):
     y = np.asarray(y, dtype=float)
     mu = np.maximum(np.asarray(mu, dtype=float), 1e-300)
     w = np.ones_like(y) if w is None else np.asarray(w, dtype=float)
+    # digamma and trigamma of y + theta are taken once per distinct count
+    values, which = np.unique(y, return_inverse=True)
+    weight_of = np.bincount(which.ravel(), weights=w, minlength=values.shape[0])
+    total = float(w.sum())
 
     def score(theta):
-        return float(np.dot(w, digamma(y + theta) - digamma(theta) + np.log(theta) + 1.0
-                            - np.log(theta + mu) - (y + theta) / (theta + mu)))
+        return (float(weight_of @ digamma(values + theta)) - total * float(digamma(theta))
+                + total * (np.log(theta) + 1.0)
+                - float(np.dot(w, np.log(theta + mu) + (y + theta) / (theta + mu))))
 
     def slope(theta):          # d score / d log(theta)
-        d = (polygamma(1, y + theta) - polygamma(1, theta) + 1.0 / theta - 2.0 / (theta + mu)
-             + (y + theta) / (theta + mu) ** 2)
-        return theta * float(np.dot(w, d))
+        tm = theta + mu
+        d = (float(weight_of @ polygamma(1, values + theta)) - total * float(polygamma(1, theta))
+             + total / theta - float(np.dot(w, 2.0 / tm - (y + theta) / (tm * tm))))
+        return theta * d
 
     lo, hi = np.log(THETA_MIN), np.log(THETA_MAX)
     if score(THETA_MAX) >= 0:

@@ -219,13 +219,12 @@ def cd_naive(X, W, r, beta, b0, ws, xv, l1, l2, fit_intercept, tol, max_sweeps, 
 
 BINOMIAL_ROWS = 1            # families.BINOMIAL_CODE (kernels import nothing; a test keeps them equal)
 NEGATIVE_BINOMIAL_ROWS = 3   # families.NEGATIVE_BINOMIAL_CODE
-# Each row function returns (w_i * deviance_i / 2, mean, V', d mu / d eta),
-# computed stably from the linear predictor: the IRLS working weight is
-# w_i * V' with V' = (d mu / d eta)^2 / V(mu) (floored), the working residual
-# (y_i - mu_i) / (d mu / d eta), and the score w_i (y_i - mu_i) (d mu / d eta) / V(mu).
-# For the canonical links (binomial, Poisson) d mu / d eta = V(mu), so V' is
-# the floored variance itself. ``shape`` is the negative binomial's theta
-# (ignored by the other families).
+# Each row function returns (w_i * deviance_i / 2, mean, h, q), computed
+# stably from the linear predictor: the IRLS working weight is w_i * h (h the
+# row's information about its linear predictor, floored) and the working
+# residual (y_i - mu_i) / q, so that weight times residual is the score. For
+# the canonical links (binomial, Poisson) h = q = V(mu), the floored variance.
+# ``shape`` is the negative binomial's theta (ignored by the other families).
 
 
 @njit(cache=True, inline="always")
@@ -263,15 +262,19 @@ def _poisson_row(yi, wi, e, eta_max):
 
 @njit(cache=True, inline="always")
 def _negative_binomial_row(yi, wi, e, eta_max, theta):
-    """(w_i * deviance_i / 2, mean, IRLS weight factor, d mu / d eta) of one row:
+    """(w_i * deviance_i / 2, mean, Newton weight factor, residual divisor) of one row:
     NB2 (variance mu + mu^2 / theta), log link.
 
     Half the unit deviance is ``y log(y / mu) - (y + theta) log((y + theta) / (mu + theta))``,
     the second log taken as ``log1p((y - mu) / (mu + theta))`` so that it tends
     to the Poisson row's ``mu - y`` as theta grows. The log link is not
-    canonical here: d mu / d eta = mu while V = mu (1 + mu / theta), so the
-    working weight is ``w mu / (1 + mu / theta)`` and the working residual
-    ``(y - mu) / mu``.
+    canonical here, and the rows carry the observed information instead of
+    Fisher's: the log-likelihood of a row is concave in eta with second
+    derivative ``-theta mu (theta + y) / (theta + mu)^2``, so IRLS with that
+    weight and the working residual ``(y - mu) (theta + mu) / (mu (theta + y))``
+    is Newton's method itself (quadratic convergence; Fisher's weights
+    ``mu theta / (theta + mu)`` converge only linearly when theta is small).
+    Weight times residual is the score ``theta (y - mu) / (theta + mu)``.
     """
     if e > eta_max:
         e = eta_max
@@ -280,7 +283,9 @@ def _negative_binomial_row(yi, wi, e, eta_max, theta):
     if yi > 0:
         d += yi * (np.log(yi) - e)
     dm = m if m > 1e-10 else 1e-10
-    return wi * d, m, dm / (1.0 + m / theta), dm
+    tm = theta + m
+    ty = theta + yi
+    return wi * d, m, dm * theta * ty / (tm * tm), dm * ty / tm
 
 
 @njit(cache=True, inline="always")
@@ -310,11 +315,11 @@ def glm_evaluate(y, eta, w, code, bound, shape, W, resid, mu):
     """Binomial (logit), Poisson or negative binomial (log) rows: one exp and at most two logs each."""
     total = 0.0
     for i in range(y.shape[0]):
-        d, m, v, dm = _family_row(y[i], w[i], eta[i], code, bound, shape)
+        d, m, h, q = _family_row(y[i], w[i], eta[i], code, bound, shape)
         total += d
         mu[i] = m
-        W[i] = w[i] * v
-        resid[i] = (y[i] - m) / dm
+        W[i] = w[i] * h
+        resid[i] = (y[i] - m) / q
     return 2.0 * total
 
 
@@ -455,7 +460,7 @@ def glm_pass(X, rows, used, center, coef, b0, offset, y, w, active, gcols, code,
             r = start + i
             wr = w[r] if w.shape[0] else 1.0
             if with_deviance:
-                d, mean, v, dm = _family_row(y[r], wr, e[i], code, bound, shape)
+                d, mean, h, q = _family_row(y[r], wr, e[i], code, bound, shape)
                 total += d
             else:
                 mean = mean_at(e[i], code, bound)
@@ -533,7 +538,7 @@ def glm_deviance(y, w, eta, code, bound, shape, lo, hi):
     """Weighted deviance ``sum w_i d_i`` of rows ``lo:hi`` at linear predictor ``eta``."""
     total = 0.0
     for r in range(lo, hi):
-        d, mean, v, dm = _family_row(y[r], w[r], eta[r], code, bound, shape)
+        d, mean, h, q = _family_row(y[r], w[r], eta[r], code, bound, shape)
         total += d
     return 2.0 * total
 

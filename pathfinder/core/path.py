@@ -60,6 +60,7 @@ import pandas as pd
 from ..defaults import GRID_DECADES, GRID_DECADES_WIDE, GRID_PER_DECADE, MAX_SWEEPS, TOL
 from ..errors import FitWarning, InputError
 from .families import get_family
+from .glm import estimate_theta
 from .solvers import (GramSolver, NaiveSolver, NewtonGramSolver, blas_threads, column_scales,
                       standardised_copy, weighted_mean)
 
@@ -99,6 +100,9 @@ class PathResult:
     standardize: bool
     stop_reason: str
     warnings: tuple = field(default=())
+    theta: float | None = None      # the negative binomial's theta, held along the path
+    theta_estimated: bool = False   # ... estimated from these data (a parameter criteria count)
+    theta_note: str = ""            # ... how it was found, in words
 
     # ---- reading the path -------------------------------------------------
     def to_frame(self) -> pd.DataFrame:
@@ -381,7 +385,7 @@ def stop_here(family, dev_explained, k, automatic, lam, last_index):
 def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, decades=None, per_decade=None,
              n_penalties=None, term_weights=None, offset=None, weights=None,
              standardize=True, tol=TOL, max_sweeps=MAX_SWEEPS, rows=None,
-             names=None, cross_products=None) -> PathResult:
+             names=None, cross_products=None, theta=None) -> PathResult:
     """Fit a lasso / elastic-net / ridge path of a Gaussian, binomial or Poisson GLM.
 
     Parameters
@@ -391,8 +395,13 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, decades=None, 
         order, float32 or float64) is read as it is, standardised on the fly:
         no copy, and float32 data stay float32 (sums are taken in float64).
     y : response (0/1 or proportions for binomial, counts for Poisson).
-    family : "gaussian", "binomial" or "poisson" (or a family object of
-        :mod:`pathfinder.core.families`).
+    family : "gaussian", "binomial", "poisson" or "negative_binomial" (or a
+        family object of :mod:`pathfinder.core.families`).
+    theta : the negative binomial's theta, held along the path. When not
+        given (here or in the family object) it is estimated once by maximum
+        likelihood from the model of every term and held (see
+        :func:`pathfinder.core.glm.estimate_theta`); the result reports it as
+        ``theta``, with ``theta_note`` saying how it was found.
     mix : 1 is the lasso, 0 ridge, in between the elastic net (Zou & Hastie 2005).
     penalties : a grid of penalties to use instead of the automatic one
         (sorted into decreasing order).
@@ -424,9 +433,15 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, decades=None, 
     if not 0.0 <= float(mix) <= 1.0:
         raise InputError(f"mix must lie between 0 (ridge) and 1 (lasso), got {mix}")
     mix = float(mix)
-    fam = get_family(family)
+    fam = get_family(family, theta)
     data = check_inputs(X, y, fam, term_weights=term_weights, offset=offset, weights=weights,
                         rows=rows, names=names)
+    theta_estimated, theta_note = fam.needs_theta, ""
+    if theta_estimated:
+        found = estimate_theta(data.X, data.y, offset=data.offset, weights=data.w, rows=data.rows)
+        fam, theta_note = fam.with_theta(found.theta), found.note
+    elif fam.takes_theta:
+        theta_note = f"theta {fam.theta:.4g}, as given, held along the path"
     n, p, v = data.n, data.p, data.term_weights
     solver, mean, scale, constant = make_solver(data, fam, standardize, max_sweeps, cross_products)
     usable = ~constant
@@ -509,6 +524,7 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, decades=None, 
         n_iter=np.array(out["iters"]), kkt_violation=np.array(out["kkt"]),
         kkt_refits=np.array(out["refits"]), center=mean, scale=scale, term_weights=v,
         n_obs=n, standardize=bool(standardize), stop_reason=stop_reason, warnings=tuple(issues),
+        theta=fam.theta, theta_estimated=theta_estimated, theta_note=theta_note,
     )
 
 

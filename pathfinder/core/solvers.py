@@ -561,8 +561,9 @@ class NewtonGramSolver(Solver):
 
     # ---- the Gram matrix ----------------------------------------------------
     def _working_weights(self, rows):
-        """IRLS weights ``w V(mu)`` at ``rows``, the variance floored as in :meth:`Family.evaluate`."""
-        return self.family.working_weights(self.eta[rows], self.w[rows])
+        """IRLS weights at ``rows``, as :meth:`Family.evaluate` gives them (``w V(mu)``,
+        floored, for the canonical links)."""
+        return self.family.newton_weights(self.y[rows], self.eta[rows], self.w[rows])
 
     def _gram(self, cols, fresh):
         """Make ``H`` hold ``X'WX / n`` (sample estimate) for ``cols`` (intercept = p).

@@ -105,6 +105,26 @@ def case_d():
     return [("d  Gaussian lasso p >> n, n=200 p=5,000 / scikit-learn enet_path", ours, peer, 1.0)]
 
 
+def case_e():
+    rng = np.random.default_rng(5)
+    n, p = 20_000, 100
+    X = ar_design(rng, n, p, 0.5)
+    beta = np.zeros(p)
+    beta[::20] = 0.3
+    mu = np.exp(0.5 + X @ beta)
+    y = rng.poisson(rng.gamma(1.5, mu / 1.5)).astype(float)      # NB2 counts, theta 1.5
+    grid = grid_for(X, y, "poisson", 50, 1e-3)
+    ours, peer = side_by_side(
+        lambda: fit_path(X, y, family="negative_binomial", penalties=grid),
+        lambda: fit_path(X, y, family="poisson", penalties=grid))
+    held, peer2 = side_by_side(
+        lambda: fit_path(X, y, family="negative_binomial", theta=1.5, penalties=grid),
+        lambda: fit_path(X, y, family="poisson", penalties=grid))
+    return [("e1 negative binomial lasso 50 penalties, theta estimated, n=20,000 p=100 / Poisson path, same data and grid",
+             ours, peer, 2.0),
+            ("e2 the same with theta given (no estimate) / Poisson path", held, peer2, 2.0)]
+
+
 MEMORY_CHILD = """
 import json, resource, sys, tracemalloc
 import numpy as np
@@ -136,7 +156,7 @@ def case_memory():
             ("m  the same, as rise of peak resident memory / size of X", m["rss_rise"] / x, 1.0, 2.0)]
 
 
-CASES = {"a": case_a, "b": case_b, "c": case_c, "d": case_d, "m": case_memory}
+CASES = {"a": case_a, "b": case_b, "c": case_c, "d": case_d, "e": case_e, "m": case_memory}
 
 
 def main(argv):
