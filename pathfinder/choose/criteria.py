@@ -45,7 +45,14 @@ Conventions of the criteria (kept everywhere in pathfinder)
   log-likelihood); binomial ``sum y log(mu) + (1 - y) log(1 - mu)`` (exact for
   0/1 data; for proportions the binomial coefficient is left out, because the
   number of trials is not known once weights are rescaled); Poisson
-  ``sum y log(mu) - mu - log(y!)``.
+  ``sum y log(mu) - mu - log(y!)``; negative binomial (Venables & Ripley
+  2002, section 7.4) ``sum log Gamma(y + theta) - log Gamma(theta) - log(y!)
+  + theta log(theta / (theta + mu)) + y log(mu / (theta + mu))`` at the
+  path's theta.
+* A negative binomial path holds one theta (see
+  :func:`pathfinder.core.glm.estimate_theta`); when it was estimated from
+  the data (``fit.theta_estimated``) it is counted as one more parameter,
+  ``k = df + 2``; a theta the user gave is not.
 * Observation weights are rescaled to sum to the number of rows, as in the
   fit, and multiply each row's log-likelihood contribution (they act as
   frequency weights; in the Gaussian case ``RSS`` and ``n`` above are the
@@ -129,7 +136,7 @@ def path_degrees_of_freedom(fit, X, weights=None, *, offset=None) -> np.ndarray:
     n = X.shape[0]
     w = _weights(weights, n)
     offset = _vector(offset, n, "offset", 0.0)
-    fam = get_family(fit.family)
+    fam = get_family(fit.family, getattr(fit, "theta", None))
 
     ever = np.flatnonzero(nonzero.any(axis=0))
     df = np.zeros(len(fit.penalties))
@@ -146,8 +153,8 @@ def path_degrees_of_freedom(fit, X, weights=None, *, offset=None) -> np.ndarray:
             continue
         if gram is None:
             eta = fit.intercept_std[k] + Xs @ fit.coef_std[k, ever] + offset
-            # The working weights w * V(mu) do not depend on y: any y will do.
-            _, working, _, _ = fam.evaluate(np.zeros(n), eta, w)
+            # Fisher's working weights (w * V(mu) for the canonical links)
+            working = fam.working_weights(eta, w)
             G = _centred_gram(Xs[:, active], working)
         else:
             G = gram[np.ix_(active, active)]
@@ -208,7 +215,7 @@ def information_criteria(fit, X, y, *, weights=None, offset=None,
     y = _vector(y, n_rows, "y", 0.0)
     w = _weights(weights, n_rows)
     off = _vector(offset, n_rows, "offset", 0.0)
-    fam = get_family(fit.family)
+    fam = get_family(fit.family, getattr(fit, "theta", None))
 
     mu = fit.predict(X, kind="response", offset=off)          # (n, K)
     dev = _check_matches_fit(fit, fam, y, mu, w)
@@ -216,7 +223,8 @@ def information_criteria(fit, X, y, *, weights=None, offset=None,
     df = path_degrees_of_freedom(fit, X, w, offset=off)
 
     n = int(np.count_nonzero(w > 0))
-    k = df + 1.0 + (1.0 if (count_variance and fam.has_scale) else 0.0)
+    k = (df + 1.0 + (1.0 if (count_variance and fam.has_scale) else 0.0)
+         + (1.0 if getattr(fit, "theta_estimated", False) else 0.0))
     aic = -2.0 * loglik + 2.0 * k
     room = n - k - 1.0
     with np.errstate(divide="ignore", invalid="ignore"):
