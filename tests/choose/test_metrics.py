@@ -193,7 +193,8 @@ def test_default_metric_is_the_deviance():
 
 @pytest.mark.parametrize("name", sorted(METRICS))
 def test_registry_direction_prefers_the_better_prediction(name, presence, counts, continuous):
-    data = {"binomial": presence, "poisson": counts, "gaussian": continuous}
+    data = {"binomial": presence, "poisson": counts, "gaussian": continuous,
+            "negative_binomial": counts}
     for family in METRICS[name].families:
         y, mu, w = data[family]
         good = np.clip(0.9 * y + 0.1 * mu, 0.02, 0.98) if family == "binomial" else \
