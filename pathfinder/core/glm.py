@@ -30,6 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.linalg import LinAlgError, cho_factor, cho_solve
 
+from ..errors import InputError
 from .families import NEGATIVE_BINOMIAL, POISSON, THETA_MAX, get_family, theta_ml
 from .solvers import sample_rows
 
@@ -208,6 +209,8 @@ def estimate_theta(X, y, *, offset=None, weights=None, rows=None) -> ThetaEstima
     w = w * (m / w.sum())
     D = np.asarray(X[of_x], dtype=np.float64)      # a copy: centred and scaled in place
     mean = w @ D / m
+    if not np.all(np.isfinite(mean)):
+        raise InputError("X contains missing or infinite values; drop or fill those rows")
     D -= mean
     spread = np.sqrt(np.maximum(w @ (D * D) / m, 0.0))
     keep = spread > 1e-10 * np.maximum(np.abs(mean), 1.0)      # as the path's no-spread test

@@ -230,6 +230,10 @@ def test_theta_is_refused_where_it_does_not_belong_or_is_not_positive():
         NegativeBinomial(-1.0)
     with pytest.raises(InputError, match="theta"):
         NEGATIVE_BINOMIAL.log_likelihood(np.ones(3), np.ones(3), np.ones(3))
+    X = np.ones((5, 1)) * np.arange(5)[:, None]
+    X[2, 0] = np.nan
+    with pytest.raises(InputError, match="missing or infinite"):
+        fit_path(X, np.arange(5.0), family="negative_binomial")
     with pytest.raises(InputError, match="non-negative"):
         fit_path(np.eye(3), np.array([-1.0, 2.0, 3.0]), family="negative_binomial", theta=1.0)
 
