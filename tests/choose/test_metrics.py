@@ -13,6 +13,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 from sklearn import metrics as skm
 
+from pathfinder.core.families import NegativeBinomial
 from pathfinder.choose.metrics import (
     METRICS, auc, brier, default_metric, deviance_explained, log_loss, mae, mean_deviance,
     mse, poisson_deviance, score,
@@ -201,8 +202,9 @@ def test_registry_direction_prefers_the_better_prediction(name, presence, counts
             np.maximum(0.9 * y + 0.1 * mu, 0.05)
         bad = mu[::-1]
         null = np.full(len(y), np.average(y, weights=w))
-        s_good = score(name, y, good, family, w, mu_null=null)
-        s_bad = score(name, y, bad, family, w, mu_null=null)
+        fam = NegativeBinomial(2.0) if family == "negative_binomial" else family  # theta given
+        s_good = score(name, y, good, fam, w, mu_null=null)
+        s_bad = score(name, y, bad, fam, w, mu_null=null)
         if METRICS[name].larger_is_better:
             assert s_good > s_bad
         else:
