@@ -249,7 +249,8 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
         cv = stages.run("cross-validating the paths", lambda tick: cross_validate(
             problem, splits, mixes=options.mixes, metrics=metrics, primary=options.metric,
             decades=options.grid_decades, per_decade=int(options.grid_per_decade),
-            repeats=folds.n_repeats, run=runner(tick)), total=len(splits) * len(options.mixes))
+            repeats=folds.n_repeats, pool_auc=folds.scheme == "spatial blocks",
+            run=runner(tick)), total=len(splits) * len(options.mixes))
         relaxed = None
         if options.relaxed_lasso and 1.0 in cv.fits:
             relaxed = stages.run("relaxing the lasso", lambda tick: relaxed_lasso(

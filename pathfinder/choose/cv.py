@@ -44,6 +44,7 @@ class FoldTask:
     penalties: np.ndarray
     metrics: tuple
     tol: float = FOLD_TOL
+    keep_predictions: bool = False   # return the held-out means (to pool the AUC over folds)
 
 
 @dataclass(frozen=True, eq=False)
@@ -53,6 +54,8 @@ class FoldScores:
     held_out: dict          # metric -> (K,)
     training: np.ndarray    # (K,) mean training deviance
     n_fitted: int           # penalties actually fitted (a saturated path stops early)
+    test: np.ndarray | None = None         # with keep_predictions: the held-out rows ...
+    predictions: np.ndarray | None = None  # ... and their means (len(test), K)
 
 
 def score_path(problem: Problem, fit, rows, metrics, *, null_rows=None):
@@ -102,8 +105,14 @@ def run_fold(problem: Problem, task: FoldTask) -> FoldScores:
     K = len(task.penalties)
     held = score_path(problem, fit, task.test, task.metrics, null_rows=task.train)
     training = fit.deviance / len(task.train)
+    predictions = None
+    if task.keep_predictions:
+        eta = problem.linear_predictor(fit.intercept, fit.coef, task.test)
+        mu = problem.family.inverse_link(eta)
+        predictions = np.concatenate([mu, np.repeat(mu[:, -1:], K - mu.shape[1], axis=1)], axis=1)
     return FoldScores(task.mix, task.fold, {m: _pad(v, K) for m, v in held.items()},
-                      _pad(training, K), len(fit.penalties))
+                      _pad(training, K), len(fit.penalties),
+                      task.test if task.keep_predictions else None, predictions)
 
 
 @dataclass(frozen=True, eq=False)
@@ -118,9 +127,28 @@ class CVResult:
     notes: tuple = field(default=())
 
 
-def fold_tasks(fits: dict, splits, metrics, tol=FOLD_TOL) -> list:
-    return [FoldTask(mix, k, train, test, fit.penalties, tuple(metrics), tol)
+def fold_tasks(fits: dict, splits, metrics, tol=FOLD_TOL, keep_predictions=False) -> list:
+    return [FoldTask(mix, k, train, test, fit.penalties, tuple(metrics), tol, keep_predictions)
             for mix, fit in fits.items() for k, (train, test) in enumerate(splits)]
+
+
+def pooled_auc(problem: Problem, results, repeats=1) -> np.ndarray:
+    """AUC over the held-out predictions of all folds together, per penalty (K,).
+
+    With spatial-block folds each fold holds few places, so a fold's own AUC
+    measures discrimination within those blocks only; pooling compares sites
+    across the whole region (Hijmans 2012, Ecology 93:679-688). With repeated
+    folds each repeat is pooled on its own and the AUCs averaged.
+    """
+    from .metrics import auc
+    per_repeat = np.array_split(np.arange(len(results)), repeats)
+    values = []
+    for members in per_repeat:
+        rows = np.concatenate([results[i].test for i in members])
+        mu = np.concatenate([results[i].predictions for i in members])
+        y, w = problem.y[rows], problem.part(problem.weights, rows)
+        values.append([auc(y, mu[:, k], w) for k in range(mu.shape[1])])
+    return np.mean(values, axis=0)
 
 
 def fold_mean_se(scores, repeats=1) -> tuple[np.ndarray, np.ndarray]:
@@ -147,7 +175,8 @@ def fold_mean_se(scores, repeats=1) -> tuple[np.ndarray, np.ndarray]:
     return mean, se
 
 
-def summarise(fits: dict, results, metrics, primary, repeats=1) -> tuple[pd.DataFrame, pd.DataFrame, float]:
+def summarise(fits: dict, results, metrics, primary, repeats=1,
+              pooled=None) -> tuple[pd.DataFrame, pd.DataFrame, float]:
     """Curves (mean and SE over folds), picks per mix, and the best mix."""
     rows, picks = [], []
     for mix, fit in fits.items():
@@ -156,6 +185,8 @@ def summarise(fits: dict, results, metrics, primary, repeats=1) -> tuple[pd.Data
         train = np.mean([r.training for r in mine], axis=0)
         for metric in metrics:
             mean, se = fold_mean_se([r.held_out[metric] for r in mine], repeats)
+            if pooled is not None and metric == "auc":
+                mean, se = pooled[mix], np.zeros(K)   # pooled over folds: no spread between folds
             rows.append(pd.DataFrame({
                 "mix": mix, "step": np.arange(K), "penalty": fit.penalties,
                 "n_terms": fit.n_terms, "metric": metric, "cv_mean": mean, "cv_se": se,
@@ -192,7 +223,7 @@ def selected_terms(fit, step) -> list:
 
 def cross_validate(problem: Problem, splits, *, mixes=(1.0,), metrics=("deviance",),
                    primary="deviance", decades=None, per_decade=None, n_penalties=None, rows=None,
-                   fold_tol=None, full_tol=None, repeats=1, run=None) -> CVResult:
+                   fold_tol=None, full_tol=None, repeats=1, pool_auc=False, run=None) -> CVResult:
     """Cross-validate a path for each mix on the given (train, test) splits.
 
     The grid of each mix comes from its path on ``rows`` (default: all rows;
@@ -206,15 +237,21 @@ def cross_validate(problem: Problem, splits, *, mixes=(1.0,), metrics=("deviance
     process); pass a wrapper of :func:`pathfinder.parallel.run_tasks` to
     spread them over workers. With repeated cross-validation the splits come
     repeat by repeat and ``repeats`` says how many (see :func:`fold_mean_se`).
+    With ``pool_auc`` (spatial-block folds) the AUC curve is computed over the
+    pooled held-out predictions of all folds (:func:`pooled_auc`); its SE is
+    then not defined and left empty.
     """
     metrics = tuple(dict.fromkeys((primary,) + tuple(metrics)))
     precision = {} if full_tol is None else {"tol": full_tol}
     fits = {float(mix): problem.fit(rows=rows, mix=float(mix), decades=decades,
                                     per_decade=per_decade, n_penalties=n_penalties, **precision) for mix in mixes}
-    tasks = fold_tasks(fits, splits, metrics, FOLD_TOL if fold_tol is None else fold_tol)
+    pool = bool(pool_auc) and "auc" in metrics
+    tasks = fold_tasks(fits, splits, metrics, FOLD_TOL if fold_tol is None else fold_tol, pool)
     problem.cross_products  # computed once here, shipped with the problem to workers
     results = (run or run_here)(run_fold, tasks, problem)
-    curves, picks, best_mix = summarise(fits, results, metrics, primary, repeats)
+    pooled = ({mix: pooled_auc(problem, [r for r in results if r.mix == mix], repeats)
+               for mix in fits} if pool else None)
+    curves, picks, best_mix = summarise(fits, results, metrics, primary, repeats, pooled)
     notes = tuple(f"a fold's path at mix {r.mix:g} (fold {r.fold + 1}) stopped after "
                   f"{r.n_fitted} of {len(fits[r.mix].penalties)} penalties; its last model "
                   "stands in for the rest" for r in results if r.n_fitted < len(fits[r.mix].penalties))

@@ -128,3 +128,27 @@ def test_a_secondary_metric_undefined_on_a_fold_never_stops_the_run():
     assert np.isfinite(auc.cv_mean).all()
     with pytest.raises(Exception, match="no presences"):
         cross_validate(problem, splits, metrics=("auc",), primary="auc", n_penalties=8)
+
+
+def test_on_spatial_blocks_the_auc_curve_pools_the_held_out_predictions():
+    """Hijmans (2012, Ecology 93:679-688): pooled over folds, against scikit-learn's
+    roc_auc_score of the same pooled predictions (fitted here with fit_path per fold)."""
+    from sklearn.metrics import roc_auc_score
+
+    from pathfinder.core import fit_path
+
+    rng = np.random.default_rng(12)
+    X = rng.standard_normal((160, 4))
+    y = rng.binomial(1, 1 / (1 + np.exp(-(X[:, 0] - X[:, 1])))).astype(float)
+    problem = Problem(X, y, "binomial", tuple(f"x{j}" for j in range(4)))
+    splits = random_folds(160, 4, seed=3).splits()
+    cv = cross_validate(problem, splits, metrics=("deviance", "auc"), n_penalties=6,
+                        pool_auc=True, fold_tol=1e-9)
+    curve = cv.curves[cv.curves.metric == "auc"].cv_mean.to_numpy()
+    grid = cv.fits[1.0].penalties
+    pooled = np.empty((160, len(grid)))
+    for train, test in splits:
+        fit = fit_path(X[train], y[train], family="binomial", penalties=grid, tol=1e-9)
+        pooled[test] = fit.predict(X[test])
+    expected = [roc_auc_score(y, pooled[:, k]) for k in range(1, len(grid))]
+    assert np.allclose(curve[1:], expected, atol=1e-6)
