@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import time
 import warnings
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -24,7 +24,9 @@ from threadpoolctl import threadpool_limits
 from .choose.criteria import information_criteria
 from . import defaults
 from .choose.cv import cross_validate
-from .core.families import get_family
+from .core.families import NegativeBinomial, get_family
+from .core.glm import estimate_theta
+from .diagnostics.dispersion import check_counts
 from .choose.folds import make_folds
 from .choose.metrics import METRICS, metrics_for as family_metrics
 from .choose.problem import BEST_SUBSET, Problem, method_name
@@ -32,6 +34,7 @@ from .choose.nested import FoldPlan, choices, comparison_table, held_out_predict
 from .choose.folds import block_of
 from .choose.relaxed import relaxed_lasso
 from .choose.skill import held_out_skill
+from .choose.subset_search import SEARCHABLE
 from .choose.by_size import compare_by_size
 from .choose.selectors import StabilitySelector, SubsetSelector
 from .choose.subsets import model_average, variable_importance
@@ -140,6 +143,7 @@ class Study:
     warnings: tuple = field(default=())
     notes: tuple = field(default=())
     stability: object = None
+    family: object = None         # the family fitted (with the negative binomial's theta)
     data_sends: int = 0           # times the shared data went out to workers
 
     @property
@@ -228,8 +232,10 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
         return frame, info, survey, design, labels
 
     frame, info, survey, design, fold_labels = stages.run("reading the table", prepare)
-    metrics = metrics_for(survey.family, options.metric)
-    problem = Problem(np.asfortranarray(design.X), survey.response, survey.family, tuple(design.names),
+    survey, family, count_notes = stages.run("checking the counts", lambda _: _count_family(
+        survey, design, options))
+    metrics = metrics_for(family, options.metric)
+    problem = Problem(np.asfortranarray(design.X), survey.response, family, tuple(design.names),
                       offset=survey.offset, weights=survey.weights, standardize=options.standardize)
     plan = FoldPlan(k=int(options.folds), family=survey.family, groups=survey.groups,
                     coords=survey.coords if options.block_size else None,
@@ -260,6 +266,11 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
         criteria = stages.run("information criteria", lambda _: _criteria_table(cv.fits, problem))
         full_choices = choices(cv, relaxed)
         extra_tables, selectors, stability, budget_notes = {}, [], None, []
+        subsets_run = options.subsets and problem.family.code in SEARCHABLE
+        if options.subsets and not subsets_run:
+            budget_notes.append(f"the best-subset and stepwise searches do not cover the "
+                                f"{problem.family.name.replace('_', ' ')} family yet, so they "
+                                "were left out of this run")
         if options.stability:
             selector = StabilitySelector(
                 n_pairs=int(options.n_pairs), threshold=options.stability_threshold, pfer=options.pfer,
@@ -276,7 +287,7 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
                 n_pairs=int(options.nested_pairs), threshold=options.stability_threshold,
                 pfer=options.pfer, mix=selector.mix, strata=selector.strata, units=selector.units,
                 term_groups=selector.term_groups))
-        if options.subsets:
+        if subsets_run:
             chooser = SubsetSelector(max_fits=options.subset_budget, max_size=options.subset_sizes)
             selectors.append(chooser)
         outer, outer_predictions = None, {}
@@ -286,7 +297,7 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
                 mixes=options.mixes, metric=options.metric, decades=options.grid_decades,
                 per_decade=int(options.grid_per_decade), relaxed_lasso=options.relaxed_lasso,
                 selectors=selectors, run=runner(tick), keep_predictions=True), total=folds.n_folds)
-        if options.subsets:   # after nested CV: its data go out once, on their own
+        if subsets_run:   # after nested CV: its data go out once, on their own
             search, steps, made = stages.run("subset search", lambda tick: chooser.run(
                 problem, None, run=runner(tick)))
             full_choices += made
@@ -299,7 +310,7 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
             extra_tables["averaged"] = _averaged_table(search, table, problem.names)
             if 1.0 in cv.fits:
                 extra_tables["by_size"] = compare_by_size(problem, search, cv.fits[1.0])
-            budget_notes.extend(search.notes)
+            budget_notes.extend(n for n in search.notes if "not listed" not in n)
             budget_notes.append(_akaike_note(search, table))
     fit_warnings = tuple(dict.fromkeys(str(w.message) for w in caught
                                        if issubclass(w.category, FitWarning)))
@@ -327,16 +338,57 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
     result_tables.update(stages.run("describing the chosen model", lambda _: _chosen_tables(
         chosen, problem, survey, design, folds, cv, splits, outer_predictions)))
     reading = tuple(info.notes) if info is not None else ()
-    notes = tuple(dict.fromkeys(reading + tuple(survey.notes) + tuple(folds.notes) + tuple(cv.notes)
-                                + tuple(budget_notes)))
+    notes = tuple(dict.fromkeys(reading + tuple(survey.notes) + tuple(count_notes)
+                                + tuple(folds.notes) + tuple(cv.notes) + tuple(budget_notes)))
     if stability is not None:
         notes += (stability.error_control,) + tuple(stability.notes)
     return Study(
         options=options, survey=survey, design=design, table_info=info, folds=folds, cv=cv,
         relaxed=relaxed, choices=full_choices, chosen=chosen, tables=result_tables, timings=stages.timings,
         backend=describe(backend), warnings=tuple(survey.warnings) + fit_warnings, notes=notes,
-        stability=stability, data_sends=session.sends,
+        stability=stability, data_sends=session.sends, family=problem.family,
     )
+
+
+def _count_family(survey, design, options):
+    """For counts: the dispersion checks, the family they point to, and theta.
+
+    ``--family auto`` moves a count from Poisson to the negative binomial when
+    the regression test of Cameron & Trivedi (1990) finds overdispersion, and
+    says why; a family the user chose is kept, with a warning when the counts
+    are overdispersed (the criteria would then reward noise). A negative
+    binomial's theta is estimated once, from the model of every term, and
+    held for every fit of the run (see core/glm.py: estimate_theta).
+    Returns ``(survey, family object, notes)``.
+    """
+    family = get_family(survey.family)
+    notes = []
+    if family.counts:
+        checks = check_counts(design.X, survey.response, offset=survey.offset,
+                              weights=survey.weights)
+        notes += [checks.pearson.message, checks.regression_test.message,
+                  checks.likelihood_ratio.message]
+        if options.family == "auto" and not family.takes_theta and checks.prefer_negative_binomial:
+            family = NegativeBinomial()
+            reason = ("negative binomial: the counts are more variable than a Poisson model "
+                      f"allows ({checks.regression_test.message})")
+            survey = replace(survey, family=family.name, family_reason=reason,
+                             notes=tuple(reason if n == survey.family_reason else n
+                                         for n in survey.notes))
+        elif not family.takes_theta and checks.regression_test.found:
+            notes.append("the counts are overdispersed but the Poisson family was chosen: its "
+                         "criteria, standard errors and Akaike weights will be overconfident; "
+                         "use --family negative_binomial (or auto)")
+        zeros = checks.zeros_negative_binomial if family.takes_theta else checks.zeros_poisson
+        notes.append(zeros.message)
+        notes += list(checks.notes)
+    if family.takes_theta and family.theta is None:
+        found = estimate_theta(design.X, survey.response, offset=survey.offset,
+                               weights=survey.weights)
+        family = NegativeBinomial(found.theta, estimated=True)
+        notes.append(f"negative binomial theta {found.theta:.4g}: {found.note}; held for every "
+                     "fit of the run (folds and subsamples too) and counted as a parameter")
+    return survey, family, tuple(n for n in notes if n)
 
 
 def _with_subset_proof(comparison: pd.DataFrame, sizes: pd.DataFrame) -> pd.DataFrame:
@@ -366,7 +418,12 @@ def _akaike_note(search, akaike) -> str:
     text = (f"Akaike weights (AICc) are shares among the {len(akaike)} models listed in "
             f"subsets.csv (the best {search.keep_per_size} of each size, {search.n_models:,} "
             f"models fitted or bounded in the search)")
-    if np.isfinite(left):
+    if not np.isfinite(left):
+        text += "; the weight of the models not listed cannot be bounded here"
+    elif "searched" in set(search.sizes["found_by"]):
+        text += (f"; at sizes that were searched, not proved, the models not listed could hold "
+                 f"up to {left:.2g} of the weight (a loose bound)")
+    else:
         text += (f"; the models not listed could hold at most {left:.2g} of the weight "
                  "(Burnham & Anderson 2002, section 4.2)")
     return text

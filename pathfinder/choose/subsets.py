@@ -606,8 +606,8 @@ def _search_notes(data, requested, top, limit, found_by, exact, budget, table, n
                     "subsets beyond that many fits are not compared one by one")
             notes.append(f"{what}sizes {span} were searched by splicing from forward stepwise "
                          f"and the neighbouring sizes: the best found, not proved best; {lift}")
-        notes.append("the Akaike weights are shares of the models listed; at searched sizes the "
-                     "weight of the models not listed cannot be bounded closely")
+        notes.append("the weight of the models not listed cannot be bounded closely at searched "
+                     "sizes")
     if data.family.binary and (table["deviance_explained"] >= SATURATED).any():
         notes.append("some subsets separate presences from absences almost perfectly; their "
                      "coefficients run towards infinity and the criteria favour them, so check "

@@ -66,6 +66,7 @@ class Family:
     kind = ""                      # the response in a reader's words
     takes_theta = False            # a shape parameter theta (negative binomial)
     theta = None                   # its value, or None while it is still to be estimated
+    theta_estimated = False        # theta held fixed but estimated from these data (criteria count it)
 
     @property
     def row_shape(self) -> float:
@@ -366,7 +367,8 @@ class NegativeBinomial(Family):
     kind = "count"
     takes_theta = True
 
-    def __init__(self, theta=None):
+    def __init__(self, theta=None, estimated=False):
+        self.theta_estimated = bool(estimated) and theta is not None
         if theta is not None:
             try:
                 theta = float(theta)
@@ -469,7 +471,7 @@ class NegativeBinomial(Family):
     __hash__ = Family.__hash__
 
     def __reduce__(self):              # keeps theta in workers
-        return (NegativeBinomial, (self.theta,))
+        return (NegativeBinomial, (self.theta, self.theta_estimated))
 
 
 def theta_ml(y, mu, w=None, start=None, tol=1e-10, max_iter=100):

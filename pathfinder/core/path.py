@@ -441,7 +441,9 @@ def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, decades=None, 
         found = estimate_theta(data.X, data.y, offset=data.offset, weights=data.w, rows=data.rows)
         fam, theta_note = fam.with_theta(found.theta), found.note
     elif fam.takes_theta:
-        theta_note = f"theta {fam.theta:.4g}, as given, held along the path"
+        theta_estimated = fam.theta_estimated     # fixed here, but estimated from these data
+        how = "estimated once from the model of every term" if theta_estimated else "as given"
+        theta_note = f"theta {fam.theta:.4g}, {how}, held along the path"
     n, p, v = data.n, data.p, data.term_weights
     solver, mean, scale, constant = make_solver(data, fam, standardize, max_sweeps, cross_products)
     usable = ~constant

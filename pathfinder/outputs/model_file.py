@@ -96,7 +96,7 @@ REQUIRED_PICK = ("method", "rule", "mix", "penalty")
 
 def model_document(*, family, response_name, response_labels, terms, reference_levels, intercept,
                    coef, offset_rule, training_frame, training_X, weights=None, pick: dict,
-                   package_version: str) -> dict:
+                   package_version: str, theta=None) -> dict:
     """The JSON-ready model file of one chosen model (see the module notes).
 
     ``terms`` and ``reference_levels`` come from the design, ``training_X``
@@ -147,6 +147,7 @@ def model_document(*, family, response_name, response_labels, terms, reference_l
         "schema_version": SCHEMA_VERSION,
         "written_by": {"package": "pathfinder", "version": str(package_version)},
         "family": str(family),
+        **({} if theta is None else {"theta": float(theta)}),
         "link": LINKS.get(str(family), ""),
         "response": {"name": str(response_name), "labels": labels,
                      "prediction": _prediction_meaning(str(family), str(response_name), labels,
@@ -351,7 +352,9 @@ def check_document(doc, where: str) -> None:
     _check_schema(doc, c)
     family = c.text(c.get(doc, "family", "family"), "family")
     if family not in FAMILIES:
-        c.fail("family", f"is '{family}'; expected gaussian, binomial or poisson")
+        c.fail("family", f"is '{family}'; expected one of {', '.join(FAMILIES)}")
+    if "theta" in doc:
+        c.number(doc["theta"], "theta")
     link = c.text(c.get(doc, "link", "link"), "link")
     if link != LINKS[family]:
         c.fail("link", f"is '{link}' but a {family} model uses '{LINKS[family]}'")

@@ -42,6 +42,7 @@ def run_record(study, command: str) -> dict:
                      "family_reason": survey.family_reason,
                      "kind": family.kind, "presence_absence": family.binary,
                      "link": family.link_name,
+                     "theta": getattr(study.family, "theta", None),
                      "prediction": family.mean_words("{}"),
                      "labels": list(survey.response_labels) if survey.response_labels else None},
         "predictors": {"kept": list(survey.predictors), "categorical": list(survey.categorical),

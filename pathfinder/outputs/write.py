@@ -24,7 +24,7 @@ def model_of(study) -> dict:
         pick={"method": choice.method, "rule": choice.rule, "mix": choice.mix,
               "penalty": choice.penalty, "relaxation": choice.relaxation,
               "metric": study.options.metric, "cv_score": choice.inner_score},
-        package_version=__version__)
+        package_version=__version__, theta=getattr(study.family, "theta", None))
 
 
 def run_notes(study) -> list[str]:

@@ -92,7 +92,8 @@ def _predictors(tables) -> tuple[str, int]:
                     f"<td>{'&ndash;' if share is None else f'{float(share):.0%}'}</td></tr>")
     more = len(frame) - MAX_ROWS
     tail = f'<p class="note">and {more} more in {_link("the chosen model", "chosen")}.</p>' if more > 0 else ""
-    head = ("<tr><th>predictor</th><th>direction</th><th>effect per SD</th>"
+    head = ("<tr><th>predictor</th><th>direction</th>"
+            f"<th>{_link('effect per SD', 'chosen')}</th>"
             f"<th>{_link('chosen in', 'stability')}</th></tr>")
     return f'<table class="compact">{head}{"".join(rows)}</table>{tail}', len(frame)
 

@@ -595,3 +595,15 @@ def test_fewer_presences_than_folds_reduce_the_folds_and_say_so():
     assert folds.n_folds == 9
     assert all(y[test].sum() >= 1 for _, test in folds.splits())
     assert any("only 9 presences" in note for note in folds.notes)
+
+
+def test_the_uneven_fold_note_numbers_folds_from_one_and_says_they_count_equally():
+    """Folds are numbered from 1 in folds.csv; the note must use the same numbering and say
+    that the CV mean weighs every fold alike (our convention, DEVELOPERS.md)."""
+    from pathfinder.choose.folds import grouped_folds
+
+    groups = np.repeat(np.arange(4), [60, 10, 10, 10])
+    folds = grouped_folds(groups, 4, seed=1)
+    note = next(n for n in folds.notes if "uneven" in n)
+    big = int(np.argmax(np.bincount(folds.fold))) + 1
+    assert f"fold {big} holds 60 sites" in note and "counts equally" in note

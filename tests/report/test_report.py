@@ -491,3 +491,23 @@ def test_theme_is_registered_under_our_name():
     config = theme.config()
     assert config["range"]["category"] == list(theme.CATEGORICAL)
     assert "http" not in str(config)
+
+
+def test_optimism_is_described_as_the_code_computes_it(full_report, full_folder):
+    """comparison.csv's optimism is outer minus inner error (choose/nested.py); the note must
+    say that, and say which sign means flattered (a check of our own wording)."""
+    comparison = pd.read_csv(full_folder / "comparison.csv")
+    mine = comparison.dropna(subset=["optimism"]).iloc[0]
+    outer = pd.read_csv(full_folder / "outer_folds.csv")
+    rows = outer[(outer.method == mine.method) & (outer.rule == mine.rule)]
+    assert mine.optimism == pytest.approx((rows.outer_score - rows.inner_score).mean(), rel=1e-6)
+    text = " ".join(full_report.split('<section id="compare">')[1].split("</section>")[0].split())
+    assert "outer-fold error minus the inner (cross-validated) error" in text
+    assert "a positive value means the inner folds flattered the choice" in text
+
+
+def test_the_stability_bound_keeps_its_condition(full_report):
+    """Meinshausen & Buhlmann (2010, Theorem 1): the bound holds for terms selected with
+    probability at most q/p; the report must keep that condition beside the number."""
+    text = " ".join(full_report.split('<section id="stability">')[1].split("</section>")[0].split())
+    assert "PFER" in text and "at most q/p" in text

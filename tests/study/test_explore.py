@@ -160,3 +160,17 @@ def test_the_subset_search_covers_the_sizes_and_says_how_each_was_found():
     assert found[0] == found[1] == "exhaustive" and (found[found.index >= 2] == "searched").all()
     assert any("searched by splicing" in n and "--subset-budget" in n for n in small.notes)
     assert set(small.tables["subsets"].found_by) == {"exhaustive", "searched"}
+
+
+def test_gaussian_criteria_count_the_error_variance_everywhere():
+    """Hurvich & Tsai (1989): AICc counts the error variance; criteria.csv, subsets.csv and
+    stepwise agree on the count (k + 2 for k terms of a continuous response)."""
+    table = _table()
+    table["growth"] = table["c0"] * 0.8 + np.random.default_rng(4).standard_normal(len(table))
+    study = explore(table, StudyOptions(response="growth", exclude=("present",), folds=3,
+                                        mixes=(1.0,), grid_per_decade=4, nested=False,
+                                        stability=False, seed=2))
+    criteria = study.tables["criteria"]
+    assert np.allclose(criteria["n_parameters"], criteria["df"] + 2)
+    subsets = study.tables["subsets"]
+    assert np.allclose(subsets["n_parameters"], subsets["k"] + 2)
