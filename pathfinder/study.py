@@ -21,7 +21,7 @@ import numpy as np
 import pandas as pd
 from threadpoolctl import threadpool_limits
 
-from .choose.criteria import information_criteria
+from .choose.criteria import information_criteria, quasi_criteria
 from . import defaults
 from .choose.cv import cross_validate
 from .core.families import NegativeBinomial, get_family
@@ -37,7 +37,7 @@ from .choose.skill import held_out_skill
 from .choose.subset_search import SEARCHABLE
 from .choose.by_size import compare_by_size
 from .choose.selectors import StabilitySelector, SubsetSelector
-from .choose.subsets import model_average, variable_importance
+from .choose.subsets import akaike_table, model_average, variable_importance
 from .data.design import Design, build_design
 from .diagnostics.collinearity import correlation_clusters, correlation_matrix, variance_inflation
 from .diagnostics.response_curves import response_curves
@@ -232,7 +232,7 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
         return frame, info, survey, design, labels
 
     frame, info, survey, design, fold_labels = stages.run("reading the table", prepare)
-    survey, family, count_notes = stages.run("checking the counts", lambda _: _count_family(
+    survey, family, count_notes, dispersion = stages.run("checking the counts", lambda _: _count_family(
         survey, design, options))
     metrics = metrics_for(family, options.metric)
     problem = Problem(np.asfortranarray(design.X), survey.response, family, tuple(design.names),
@@ -263,7 +263,8 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
                 problem, cv.fits[1.0], splits, metric=options.metric, repeats=folds.n_repeats,
                 run=runner(tick)),
                 total=len(splits))
-        criteria = stages.run("information criteria", lambda _: _criteria_table(cv.fits, problem))
+        criteria = stages.run("information criteria", lambda _: _criteria_table(cv.fits, problem,
+                                                                                    dispersion))
         full_choices = choices(cv, relaxed)
         extra_tables, selectors, stability, budget_notes = {}, [], None, []
         subsets_run = options.subsets and problem.family.code in SEARCHABLE
@@ -302,7 +303,7 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
                 problem, None, run=runner(tick)))
             full_choices += made
             extra_tables["stepwise"] = steps.steps
-            table = search.akaike("aicc")
+            table = _subset_table(search, dispersion)
             extra_tables["subsets"] = table
             extra_tables["subset_sizes"] = search.sizes
             importance = variable_importance(table, problem.names)
@@ -359,10 +360,12 @@ def _count_family(survey, design, options):
     are overdispersed (the criteria would then reward noise). A negative
     binomial's theta is estimated once, from the model of every term, and
     held for every fit of the run (see core/glm.py: estimate_theta).
-    Returns ``(survey, family object, notes)``.
+    Returns ``(survey, family object, notes, dispersion)``: the dispersion of a
+    Poisson family kept on overdispersed counts (for QAIC and QAICc, Burnham &
+    Anderson 2002, section 2.5), else None.
     """
     family = get_family(survey.family)
-    notes = []
+    notes, dispersion = [], None
     if family.counts:
         checks = check_counts(design.X, survey.response, offset=survey.offset,
                               weights=survey.weights)
@@ -376,9 +379,12 @@ def _count_family(survey, design, options):
                              notes=tuple(reason if n == survey.family_reason else n
                                          for n in survey.notes))
         elif not family.takes_theta and checks.regression_test.found:
+            dispersion = float(checks.pearson.statistic)
             notes.append("the counts are overdispersed but the Poisson family was chosen: its "
-                         "criteria, standard errors and Akaike weights will be overconfident; "
-                         "use --family negative_binomial (or auto)")
+                         "likelihood, standard errors and Akaike weights are overconfident, so "
+                         f"QAIC and QAICc (dispersion {dispersion:.3g}) are given beside AIC in "
+                         "criteria.csv and subsets.csv and the Akaike weights use QAICc; "
+                         "--family negative_binomial (or auto) models the extra variation")
         zeros = checks.zeros_negative_binomial if family.takes_theta else checks.zeros_poisson
         notes.append(zeros.message)
         notes += list(checks.notes)
@@ -388,7 +394,7 @@ def _count_family(survey, design, options):
         family = NegativeBinomial(found.theta, estimated=True)
         notes.append(f"negative binomial theta {found.theta:.4g}: {found.note}; held for every "
                      "fit of the run (folds and subsamples too) and counted as a parameter")
-    return survey, family, tuple(n for n in notes if n)
+    return survey, family, tuple(n for n in notes if n), dispersion
 
 
 def _with_subset_proof(comparison: pd.DataFrame, sizes: pd.DataFrame) -> pd.DataFrame:
@@ -412,10 +418,22 @@ def _unproved_choice_note(chosen, comparison) -> tuple:
     return ()
 
 
+def _subset_table(search, dispersion) -> pd.DataFrame:
+    """subsets.csv: the Akaike table by AICc, or by QAICc for overdispersed Poisson counts."""
+    if dispersion is None:
+        return search.akaike("aicc")
+    table = search.table.copy()
+    for name, values in quasi_criteria(table["log_likelihood"], table["n_parameters"], search.n,
+                                       dispersion).items():
+        table[name] = values
+    return akaike_table(table, "qaicc")
+
+
 def _akaike_note(search, akaike) -> str:
     """What the Akaike weights are shares of, and how much the models not listed could hold."""
     left = search.weight_left_out("aicc")
-    text = (f"Akaike weights (AICc) are shares among the {len(akaike)} models listed in "
+    criterion = "QAICc" if "qaicc" in akaike.columns else "AICc"
+    text = (f"Akaike weights ({criterion}) are shares among the {len(akaike)} models listed in "
             f"subsets.csv (the best {search.keep_per_size} of each size, {search.n_models:,} "
             f"models fitted or bounded in the search)")
     if not np.isfinite(left):
@@ -437,7 +455,7 @@ def _averaged_table(search, akaike, names) -> pd.DataFrame:
     """
     averaged = model_average(akaike, search.coefficients)
     return pd.DataFrame({"term": list(names), "averaged_estimate": averaged,
-                         "criterion": "aicc"})
+                         "criterion": "qaicc" if "qaicc" in akaike.columns else "aicc"})
 
 
 def _sampling_units(survey, options):
@@ -449,16 +467,17 @@ def _sampling_units(survey, options):
     return None
 
 
-def _criteria_table(fits: dict, problem: Problem) -> pd.DataFrame:
+def _criteria_table(fits: dict, problem: Problem, dispersion=None) -> pd.DataFrame:
     with threadpool_limits(limits=1):   # many small matrices: one thread is fastest
-        return _criteria_parts(fits, problem)
+        return _criteria_parts(fits, problem, dispersion)
 
 
-def _criteria_parts(fits: dict, problem: Problem) -> pd.DataFrame:
+def _criteria_parts(fits: dict, problem: Problem, dispersion=None) -> pd.DataFrame:
     parts = []
     for mix, fit in fits.items():
         frame = information_criteria(fit, problem.X, problem.y, weights=problem.weights,
-                                     offset=problem.offset, count_variance=True)
+                                     offset=problem.offset, count_variance=True,
+                                     dispersion=dispersion)
         frame.insert(0, "mix", mix)
         frame.insert(0, "method", method_name(mix))
         parts.append(frame)

@@ -197,8 +197,27 @@ def _check_matches_fit(fit, fam, y, mu, w):
 
 # ---- the table -----------------------------------------------------------------
 
+def quasi_criteria(log_likelihood, n_parameters, n, dispersion) -> dict:
+    """QAIC and QAICc for overdispersed counts (Burnham & Anderson 2002, section 2.5).
+
+    ``QAIC = -2 logL / c + 2K`` and ``QAICc = QAIC + 2K(K + 1) / (n - K - 1)``,
+    with ``c`` the dispersion estimated from the model of every term (the
+    Pearson statistic over its residual degrees of freedom) and ``K`` the
+    parameters plus one for ``c`` itself. With ``c <= 1`` the counts are not
+    overdispersed and the book keeps ``c = 1``; so does this function.
+    """
+    ll = np.asarray(log_likelihood, dtype=float)
+    c = max(float(dispersion), 1.0)
+    K = np.asarray(n_parameters, dtype=float) + 1.0
+    qaic = -2.0 * ll / c + 2.0 * K
+    room = n - K - 1.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        qaicc = np.where(room > 0, qaic + 2.0 * K * (K + 1.0) / room, np.inf)
+    return {"qaic": qaic, "qaicc": qaicc}
+
+
 def information_criteria(fit, X, y, *, weights=None, offset=None,
-                         count_variance=False) -> pd.DataFrame:
+                         count_variance=False, dispersion=None) -> pd.DataFrame:
     """One row per penalty: degrees of freedom, log-likelihood, AIC, AICc and BIC.
 
     Columns: step, penalty, n_terms, df, n_parameters (k), log_likelihood,
@@ -206,7 +225,9 @@ def information_criteria(fit, X, y, *, weights=None, offset=None,
     adjusted_r2. ``X, y, weights, offset`` must be the data the path was
     fitted on (checked: they must reproduce its deviance). ``count_variance``
     counts the Gaussian error variance as a parameter (default: not counted,
-    as in statsmodels' GLM). The conventions are set out in the module notes.
+    as in statsmodels' GLM). ``dispersion`` (overdispersed counts fitted as
+    Poisson) adds qaic and qaicc (:func:`quasi_criteria`). The conventions
+    are set out in the module notes.
     """
     X = _design(fit, X)
     n_rows = X.shape[0]
@@ -242,6 +263,9 @@ def information_criteria(fit, X, y, *, weights=None, offset=None,
         "aicc": aicc,
         "bic": bic,
     })
+    if dispersion is not None:
+        for name, values in quasi_criteria(loglik, k, n, dispersion).items():
+            table[name] = values
     if fam.least_squares:
         b0 = fam.null_intercept(y, w, off)
         null_dev = fam.deviance(y, b0 + off, w)

@@ -282,3 +282,15 @@ def test_dataframe_columns_are_matched_by_name():
     fit = fit_path(frame, y, mix=0.5, n_penalties=10)
     shuffled = frame[frame.columns[::-1]]
     pd.testing.assert_frame_equal(information_criteria(fit, shuffled, y), information_criteria(fit, frame, y))
+
+
+def test_quasi_criteria_follow_burnham_and_anderson():
+    """Burnham & Anderson (2002, section 2.5): QAIC = -2 logL / c + 2K, K counting c;
+    QAICc adds 2K(K + 1)/(n - K - 1); c below 1 is taken as 1."""
+    from pathfinder.choose.criteria import quasi_criteria
+
+    q = quasi_criteria([-120.0, -100.0], [3, 5], 60, 2.5)
+    assert q["qaic"] == pytest.approx([2 * 120 / 2.5 + 8, 2 * 100 / 2.5 + 12])
+    assert q["qaicc"][1] == pytest.approx(2 * 100 / 2.5 + 12 + 2 * 6 * 7 / (60 - 7))
+    same = quasi_criteria([-120.0], [3], 60, 0.7)
+    assert same["qaic"][0] == pytest.approx(240 + 8)

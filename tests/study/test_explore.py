@@ -6,6 +6,7 @@ import pytest
 
 from pathfinder.choose.cv import cross_validate
 from pathfinder.choose.problem import Problem
+from pathfinder.core.families import NegativeBinomial
 from pathfinder.choose.folds import random_folds, spatial_block_folds
 from pathfinder.outputs.write import write_study
 from pathfinder.parallel import Backend
@@ -174,3 +175,22 @@ def test_gaussian_criteria_count_the_error_variance_everywhere():
     assert np.allclose(criteria["n_parameters"], criteria["df"] + 2)
     subsets = study.tables["subsets"]
     assert np.allclose(subsets["n_parameters"], subsets["k"] + 2)
+
+
+def test_overdispersed_counts_are_found_and_said():
+    """Cameron & Trivedi (1990) regression test, through diagnostics/dispersion.py: invented
+    negative-binomial counts (theta 1) are moved to the negative binomial under auto, and a
+    forced Poisson gets QAIC and QAICc (Burnham & Anderson 2002, section 2.5)."""
+    rng = np.random.default_rng(9)
+    table = _table()
+    mu = np.exp(0.8 + 0.6 * table["c0"].to_numpy())
+    table["n"] = rng.negative_binomial(1.0, 1.0 / (1.0 + mu))
+    quick = dict(response="n", exclude=("present",), folds=3, mixes=(1.0,), grid_per_decade=4,
+                 nested=False, stability=False, seed=2)
+    auto = explore(table, StudyOptions(**quick, subsets=False))
+    assert auto.family.name == NegativeBinomial.name and auto.family.theta > 0
+    assert any("overdispersed" in n for n in auto.notes)
+    forced = explore(table, StudyOptions(**quick, family="poisson"))
+    assert {"qaic", "qaicc"} <= set(forced.tables["criteria"].columns)
+    assert "qaicc" in forced.tables["subsets"].columns
+    assert any("QAICc" in n for n in forced.notes)
