@@ -72,14 +72,7 @@ def score_path(problem: Problem, fit, rows, metrics, *, null_rows=None):
     out = {}
     mu_null = None
     if "deviance_explained" in metrics:
-        train = null_rows
-        w_train = problem.part(problem.weights, train)
-        w_train = np.ones(len(train)) if w_train is None else w_train * len(train) / w_train.sum()
-        off_train = problem.part(problem.offset, train)
-        b0 = fam.null_intercept(problem.y[train], w_train,
-                            np.zeros(len(train)) if off_train is None else off_train)
-        off = problem.part(problem.offset, rows)
-        mu_null = fam.inverse_link(b0 + (np.zeros(len(rows)) if off is None else off))
+        mu_null = problem.null_means(null_rows, rows)
     for i, metric in enumerate(metrics):
         try:
             out[metric] = np.array([score(metric, y, mu[:, k], fam, w, mu_null)

@@ -98,6 +98,16 @@ class Problem:
     def part(self, values, rows):
         return None if values is None else values[rows]
 
+    def null_means(self, train, rows):
+        """Means at ``rows`` of the intercept-only model fitted on the rows ``train``."""
+        w = self.part(self.weights, train)
+        w = np.ones(len(train)) if w is None else w * len(train) / w.sum()
+        off_train = self.part(self.offset, train)
+        b0 = self.family.null_intercept(self.y[train], w,
+                                        np.zeros(len(train)) if off_train is None else off_train)
+        off = self.part(self.offset, rows)
+        return self.family.inverse_link(b0 + (np.zeros(len(rows)) if off is None else off))
+
     def linear_predictor(self, intercept, coef, rows):
         """(len(rows), K) linear predictors for intercepts (K,) and coefficients (K, p)."""
         eta = self.X[rows] @ coef.T + intercept

@@ -36,14 +36,8 @@ def _fold_rows(problem: Problem, held, splits):
     for train, test in splits:
         y, mu = problem.y[test], held[test]
         w = problem.part(problem.weights, test)
-        w_train = problem.part(problem.weights, train)
-        w_train = np.ones(len(train)) if w_train is None else w_train * len(train) / w_train.sum()
-        off_train = problem.part(problem.offset, train)
-        b0 = fam.null_intercept(problem.y[train], w_train,
-                                np.zeros(len(train)) if off_train is None else off_train)
-        off = problem.part(problem.offset, test)
-        null = fam.inverse_link(b0 + (np.zeros(len(test)) if off is None else off))
-        row = {"deviance_explained": deviance_explained(y, mu, null, fam, w)}
+        row = {"deviance_explained": deviance_explained(y, mu, problem.null_means(train, test),
+                                                        fam, w)}
         if fam.binary:
             try:
                 row["auc"] = auc(y, mu, w)

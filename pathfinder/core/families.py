@@ -153,7 +153,9 @@ class Family:
         """Intercept of the intercept-only model (with offset), by Newton steps.
 
         Without an offset this is the link of the weighted mean; with one it is
-        solved exactly (a one-parameter GLM).
+        solved exactly (a one-parameter GLM), by Fisher scoring with the
+        family's own scores and working weights (right for non-canonical
+        links such as the negative binomial's log link too).
         """
         ybar = float(np.dot(w, y) / w.sum())
         b0 = self.start_intercept(ybar)
@@ -162,8 +164,8 @@ class Family:
         b0 -= float(np.dot(w, offset) / w.sum())
         for _ in range(100):
             mu = self.inverse_link(b0 + offset)
-            grad = float(np.dot(w, y - mu))
-            hess = float(np.dot(w, self.variance(mu)))
+            grad = float(np.sum(self.score(y, mu, w)))
+            hess = float(np.sum(self.working_weights(b0 + offset, w)))
             step = grad / max(hess, 1e-300)
             b0 += step
             if abs(step) < 1e-12 * (1 + abs(b0)):
@@ -293,13 +295,31 @@ class Binomial(Family):
                 "would give unbounded coefficients")
 
 
-class Poisson(Family):
+class CountFamily(Family):
+    """What the count families share: non-negative counts in, positive means out."""
+
+    counts = True
+    kind = "count"
+
+    def check_response(self, y, where="the response"):
+        if np.any(y < 0):
+            raise InputError(f"a {self.name.replace('_', ' ')} response must be non-negative "
+                             f"counts; check {where} or choose another family")
+
+    def check_means(self, mu, where):
+        if np.any(mu <= 0):
+            raise InputError(f"{where}: predicted counts must be positive; "
+                             "predict on the response scale, not the link scale")
+
+    def mean_words(self, response):
+        return f"expected {response}"
+
+
+class Poisson(CountFamily):
     """A count: log link, variance mu."""
 
     name, link_name, code = "poisson", "log", POISSON_CODE
-    counts = True
     row_bound = _ETA_MAX                           # largest linear predictor
-    kind = "count"
 
     def inverse_link(self, eta):
         return np.exp(np.minimum(eta, _ETA_MAX))
@@ -325,21 +345,9 @@ class Poisson(Family):
     def log_likelihood_constant(self, y, w) -> float:
         return -float(np.dot(w, gammaln(np.asarray(y, dtype=float) + 1.0)))
 
-    def check_response(self, y, where="the response"):
-        if np.any(y < 0):
-            raise InputError(f"a Poisson response must be non-negative counts; check {where} "
-                             "or choose another family")
-
-    def check_means(self, mu, where):
-        if np.any(mu <= 0):
-            raise InputError(f"{where}: predicted counts must be positive; "
-                             "predict on the response scale, not the link scale")
-
-    def mean_words(self, response):
-        return f"expected {response}"
 
 
-class NegativeBinomial(Family):
+class NegativeBinomial(CountFamily):
     """A count more variable than Poisson: log link, variance ``mu + mu^2 / theta`` (NB2).
 
     The negative binomial of Venables & Ripley (2002, Modern Applied
@@ -362,9 +370,7 @@ class NegativeBinomial(Family):
     """
 
     name, link_name, code = "negative_binomial", "log", NEGATIVE_BINOMIAL_CODE
-    counts = True
     row_bound = _ETA_MAX                           # largest linear predictor
-    kind = "count"
     takes_theta = True
 
     def __init__(self, theta=None, estimated=False):
@@ -428,37 +434,6 @@ class NegativeBinomial(Family):
         each = (gammaln(y + theta) - gammaln(theta) - gammaln(y + 1.0)
                 - theta * np.log1p(mu / theta) + xlogy(y, mu / (theta + mu)))
         return (wc * each).sum(axis=0)
-
-    def null_intercept(self, y, w, offset) -> float:
-        """As :meth:`Family.null_intercept`, with the scores and Fisher weights of the
-        non-canonical log link (without an offset the answer is still log of the mean)."""
-        ybar = float(np.dot(w, y) / w.sum())
-        b0 = self.start_intercept(ybar)
-        if not np.any(offset):
-            return b0
-        b0 -= float(np.dot(w, offset) / w.sum())
-        for _ in range(100):
-            mu = self.inverse_link(b0 + offset)
-            grad = float(np.sum(self.score(y, mu, w)))
-            hess = float(np.sum(self.working_weights(b0 + offset, w)))
-            step = grad / max(hess, 1e-300)
-            b0 += step
-            if abs(step) < 1e-12 * (1 + abs(b0)):
-                break
-        return b0
-
-    def check_response(self, y, where="the response"):
-        if np.any(y < 0):
-            raise InputError(f"a negative binomial response must be non-negative counts; check "
-                             f"{where} or choose another family")
-
-    def check_means(self, mu, where):
-        if np.any(mu <= 0):
-            raise InputError(f"{where}: predicted counts must be positive; "
-                             "predict on the response scale, not the link scale")
-
-    def mean_words(self, response):
-        return f"expected {response}"
 
     def __repr__(self):
         return "NegativeBinomial()" if self.theta is None else f"NegativeBinomial(theta={self.theta!r})"

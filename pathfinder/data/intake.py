@@ -518,17 +518,13 @@ def _read_csv(file: Path, *, decimal, delimiter, columns, codes=()) -> tuple[pd.
         raise InputError(
             f"{file} has a header row but no data rows; add the survey rows below the header"
         )
-    info = TableInfo(
-        path=str(file),
-        format="csv",
-        sha256=sha256,
-        n_rows=len(frame),
-        n_columns=frame.shape[1],
-        delimiter=delimiter,
-        decimal=decimal,
-        notes=tuple(notes),
-    )
-    return frame, info
+    return frame, _table_info(file, "csv", sha256, frame, delimiter, decimal, notes)
+
+
+def _table_info(file, fmt, sha256, frame, delimiter=None, decimal=None, notes=()) -> TableInfo:
+    return TableInfo(path=str(file), format=fmt, sha256=sha256, n_rows=len(frame),
+                     n_columns=frame.shape[1], delimiter=delimiter, decimal=decimal,
+                     notes=tuple(notes))
 
 
 def _read_parquet(file: Path, columns) -> tuple[pd.DataFrame, TableInfo]:
@@ -560,16 +556,7 @@ def _read_parquet(file: Path, columns) -> tuple[pd.DataFrame, TableInfo]:
     frame = frame.reset_index(drop=True)
     if len(frame) == 0:
         raise InputError(f"{file} has columns but no data rows; add the survey rows")
-    info = TableInfo(
-        path=str(file),
-        format="parquet",
-        sha256=sha256,
-        n_rows=len(frame),
-        n_columns=frame.shape[1],
-        delimiter=None,
-        decimal=None,
-    )
-    return frame, info
+    return frame, _table_info(file, "parquet", sha256, frame)
 
 
 # ---------------------------------------------------------------------------

@@ -402,27 +402,27 @@ def _check_response(response: dict, c: _Checker) -> None:
             c.text(c.get(labels, code, f"response.labels.{code}"), f"response.labels.{code}")
 
 
+def _sized(term: dict, key: str, size: int, what: str, kind: str, path: str, c: "_Checker") -> list:
+    """The list ``term[key]``, refused unless it holds the ``size`` items a ``kind`` term has."""
+    items = c.array(c.get(term, key, f"{path}.{key}"), f"{path}.{key}")
+    if len(items) != size:
+        c.fail(f"{path}.{key}", f"holds {len(items)} {what}; a {kind} term has {size}")
+    return items
+
+
 def _check_term(term: dict, path: str, c: _Checker) -> str:
     name = c.text(c.get(term, "name", f"{path}.name"), f"{path}.name")
     kind = c.text(c.get(term, "kind", f"{path}.kind"), f"{path}.kind")
     if kind not in KINDS:
         c.fail(f"{path}.kind", f"is '{kind}'; expected one of {', '.join(KINDS)}")
-    sources = c.array(c.get(term, "sources", f"{path}.sources"), f"{path}.sources")
-    if len(sources) != N_SOURCES[kind]:
-        c.fail(f"{path}.sources", f"lists {len(sources)} column(s); a {kind} term is built from "
-               f"{N_SOURCES[kind]}")
-    for k, source in enumerate(sources):
+    for k, source in enumerate(_sized(term, "sources", N_SOURCES[kind], "column(s)", kind, path, c)):
         c.text(source, f"{path}.sources[{k}]")
     level = c.get(term, "level", f"{path}.level")
     if kind == "level":
         c.text(level, f"{path}.level")
     elif level is not None:
         c.fail(f"{path}.level", f"must be null for a {kind} term")
-    centers = c.array(c.get(term, "centers", f"{path}.centers"), f"{path}.centers")
-    if len(centers) != N_CENTERS[kind]:
-        c.fail(f"{path}.centers", f"holds {len(centers)} value(s); a {kind} term needs "
-               f"{N_CENTERS[kind]}")
-    for k, center in enumerate(centers):
+    for k, center in enumerate(_sized(term, "centers", N_CENTERS[kind], "value(s)", kind, path, c)):
         c.number(center, f"{path}.centers[{k}]")
     c.text(c.get(term, "group", f"{path}.group"), f"{path}.group")
     coefficient = c.number(c.get(term, "coefficient", f"{path}.coefficient"), f"{path}.coefficient")

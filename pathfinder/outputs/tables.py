@@ -11,26 +11,25 @@ import numpy as np
 import pandas as pd
 
 
-def coefficients_table(fits: dict) -> pd.DataFrame:
-    """method, mix, step, penalty, term, estimate (original units), estimate_std."""
+def _per_path(fits: dict, frame_of) -> pd.DataFrame:
+    """``frame_of(fit)`` of every path, stacked, with its method and mix in front."""
     parts = []
     for (method, mix), fit in fits.items():
-        long = fit.to_frame()
-        long.insert(0, "mix", mix)
-        long.insert(0, "method", method)
-        parts.append(long)
+        frame = frame_of(fit)
+        frame.insert(0, "mix", mix)
+        frame.insert(0, "method", method)
+        parts.append(frame)
     return pd.concat(parts, ignore_index=True)
+
+
+def coefficients_table(fits: dict) -> pd.DataFrame:
+    """method, mix, step, penalty, term, estimate (original units), estimate_std."""
+    return _per_path(fits, lambda fit: fit.to_frame())
 
 
 def path_table(fits: dict) -> pd.DataFrame:
     """One row per fitted penalty: method, mix, step, penalty, n_terms, deviance, deviance_explained."""
-    parts = []
-    for (method, mix), fit in fits.items():
-        summary = fit.summary_frame()
-        summary.insert(0, "mix", mix)
-        summary.insert(0, "method", method)
-        parts.append(summary)
-    return pd.concat(parts, ignore_index=True)
+    return _per_path(fits, lambda fit: fit.summary_frame())
 
 
 def _with_relaxed(frame: pd.DataFrame, relaxed_part, method_name) -> pd.DataFrame:
