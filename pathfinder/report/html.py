@@ -227,7 +227,14 @@ def section_data(tables, record) -> Section:
             text += f" ({_esc(response.get('family_reason'))})"
         if response.get("labels"):
             text += f"; labels {', '.join(_esc(x) for x in response['labels'])}"
+        if response.get("theta") is not None:
+            text += f"; theta {_num(response['theta'], 4)} (smaller means more clumped counts)"
         s.parts.append(_para(text + "."))
+        counts = [n for n in ((_get(record, "notes") if record else None) or [])
+                  if any(w in str(n) for w in COUNT_WORDS)]
+        if counts:
+            s.parts.append(_para("How variable the counts are:"))
+            s.parts.append(_list([_esc(n) for n in counts]))
     sites = tables.get("sites")
     if sites is not None and "observed" in sites.columns:
         observed = pd.to_numeric(sites["observed"], errors="coerce").dropna()
@@ -607,6 +614,8 @@ def section_compare(tables, record) -> Section:
     return s
 
 
+COUNT_WORDS = ("dispersion", "overdispersed", "zero counts", "theta", "QAIC",
+               "likelihood ratio of the negative binomial")
 FOUND_BY_WORDS = {"exhaustive": "every subset compared", "proved": "proved best",
                   "searched": "searched, not proved"}
 SEARCH_WORDS = ("subset", "splicing", "branch and bound", "sizes")
