@@ -4,7 +4,9 @@ Both work on the standardised predictors ``Xt`` (p, n) and reuse the Newton
 fits of the exhaustive kernel (:mod:`pathfinder.core.kernels_subsets`): a
 model with one more term is fitted from its parent's coefficients, the new
 one at zero, with the parent's working weights kept so that the first Newton
-step needs no pass over the rows.
+step needs no pass over the rows. ``fam`` and ``shape`` (the negative
+binomial's theta, held fixed; ignored by the other families) select the row
+arithmetic as in ``kernels_subsets._rows``.
 
 * :func:`forward_path` adds, at every size, the term whose refit gains the
   most log-likelihood (ties: the term listed first), every candidate fitted
@@ -107,8 +109,8 @@ def _rising(objective, constant, penalty, last, window):
 
 
 @njit(cache=True)
-def forward_path(Xt, y, w, off, fam, intercept_start, max_size, tol, max_iter, alias_tol, stored,
-                 constant, penalty, window, added, objective, coef):
+def forward_path(Xt, y, w, off, fam, shape, intercept_start, max_size, tol, max_iter, alias_tol,
+                 stored, constant, penalty, window, added, objective, coef):
     """Forward stepwise at every size up to ``max_size``.
 
     With ``window > 0`` the path stops early once every criterion of
@@ -138,13 +140,13 @@ def forward_path(Xt, y, w, off, fam, intercept_start, max_size, tol, max_iter, a
     fits = 1
     bad = 0
     betas[0, 0] = intercept_start
-    f = _pass(Xt, y, w, off, fam, members, 0, betas[0], gs[0], Hs[0], 0, work)
-    fs[0], ok, buffers = _newton(Xt, y, w, off, fam, members, 0, betas[0], gs[0], Hs[0], f, tol,
-                                 max_iter, alias_tol, work, small, H_new, L, 0)
+    f = _pass(Xt, y, w, off, fam, shape, members, 0, betas[0], gs[0], Hs[0], 0, work)
+    fs[0], ok, buffers = _newton(Xt, y, w, off, fam, shape, members, 0, betas[0], gs[0], Hs[0], f,
+                                 tol, max_iter, alias_tol, work, small, H_new, L, 0)
     if not ok:
         bad += 1
     if stored:
-        _keep_vectors(Xt, y, w, off, fam, members, 0, betas[0], work, buffers, True, V, R, 0)
+        _keep_vectors(Xt, y, w, off, fam, shape, members, 0, betas[0], work, buffers, True, V, R, 0)
     objective[0] = fs[0]
     coef[0, 0] = betas[0, 0]
     for d in range(max_size):
@@ -154,7 +156,7 @@ def forward_path(Xt, y, w, off, fam, intercept_start, max_size, tol, max_iter, a
             if inside[j]:
                 continue
             members[d] = j
-            _fit_child(Xt, y, w, off, fam, members, d, betas, gs, Hs, fs, V, R, stored, tol,
+            _fit_child(Xt, y, w, off, fam, shape, members, d, betas, gs, Hs, fs, V, R, stored, tol,
                        max_iter, alias_tol, work, small, H_new, L)
             fits += 1
             if fs[d + 1] > best_f or best_j < 0:
@@ -162,8 +164,8 @@ def forward_path(Xt, y, w, off, fam, intercept_start, max_size, tol, max_iter, a
                 best_j = j
         members[d] = best_j
         inside[best_j] = True
-        if not _fit_child(Xt, y, w, off, fam, members, d, betas, gs, Hs, fs, V, R, stored, tol,
-                          max_iter, alias_tol, work, small, H_new, L):
+        if not _fit_child(Xt, y, w, off, fam, shape, members, d, betas, gs, Hs, fs, V, R, stored,
+                          tol, max_iter, alias_tol, work, small, H_new, L):
             bad += 1
         added[d] = best_j
         objective[d + 1] = fs[d + 1]
@@ -175,20 +177,20 @@ def forward_path(Xt, y, w, off, fam, intercept_start, max_size, tol, max_iter, a
 
 
 @njit(cache=True)
-def _fit_set(Xt, y, w, off, fam, members, k, beta, tol, max_iter, alias_tol, work, small, g, H,
-             H_new, L):
+def _fit_set(Xt, y, w, off, fam, shape, members, k, beta, tol, max_iter, alias_tol, work, small, g,
+             H, H_new, L):
     """Fit ``members[:k]`` from ``beta`` (updated in place); returns (objective, converged)."""
-    f = _pass(Xt, y, w, off, fam, members, k, beta, g, H, 0, work)
-    f, ok, _ = _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol, max_iter, alias_tol,
-                       work, small, H_new, L, 0)
+    f = _pass(Xt, y, w, off, fam, shape, members, k, beta, g, H, 0, work)
+    f, ok, _ = _newton(Xt, y, w, off, fam, shape, members, k, beta, g, H, f, tol, max_iter,
+                       alias_tol, work, small, H_new, L, 0)
     return f, ok
 
 
 @njit(cache=True)
-def _sacrifices(Xt, y, w, off, fam, cur, k, beta, inside, sacrifice, eta, v, r):
+def _sacrifices(Xt, y, w, off, fam, shape, cur, k, beta, inside, sacrifice, eta, v, r):
     """Backward sacrifice of each term in (``b^2 h / 2``), forward of each term out (``g^2 / 2h``)."""
     p, n = Xt.shape
-    _rows(Xt, y, w, off, fam, cur, k, beta, eta, v, r)
+    _rows(Xt, y, w, off, fam, shape, cur, k, beta, eta, v, r)
     for j in range(p):
         col = Xt[j]
         gj = 0.0
@@ -206,7 +208,7 @@ def _sacrifices(Xt, y, w, off, fam, cur, k, beta, inside, sacrifice, eta, v, r):
 
 
 @njit(cache=True)
-def neighbour_start(Xt, y, w, off, fam, members, beta, grow):
+def neighbour_start(Xt, y, w, off, fam, shape, members, beta, grow):
     """A start for the next size from a fitted model: add its strongest missing term
     (``grow``) or drop its weakest term, by the sacrifices of :func:`splice`.
 
@@ -220,7 +222,8 @@ def neighbour_start(Xt, y, w, off, fam, members, beta, grow):
         inside[members[a]] = True
     sacrifice = np.empty(p)
     work = np.empty((3, n))
-    _sacrifices(Xt, y, w, off, fam, members, k, beta, inside, sacrifice, work[0], work[1], work[2])
+    _sacrifices(Xt, y, w, off, fam, shape, members, k, beta, inside, sacrifice, work[0], work[1],
+                work[2])
     pick = -1
     for j in range(p):
         if inside[j] == grow:
@@ -245,8 +248,9 @@ def neighbour_start(Xt, y, w, off, fam, members, beta, grow):
 
 
 @njit(cache=True)
-def splice(Xt, y, w, off, fam, start, start_beta, max_swap, gain_tol, max_rounds, tol, max_iter,
-           alias_tol, slot_start, cap, filled, worst, best_score, best_members, best_coef):
+def splice(Xt, y, w, off, fam, shape, start, start_beta, max_swap, gain_tol, max_rounds, tol,
+           max_iter, alias_tol, slot_start, cap, filled, worst, best_score, best_members,
+           best_coef):
     """Splicing search for the best subset of size ``len(start)``, from ``start``.
 
     ``start_beta`` holds a starting intercept and coefficients (in the order
@@ -270,8 +274,8 @@ def splice(Xt, y, w, off, fam, start, start_beta, max_swap, gain_tol, max_rounds
         for b in range(k):
             if start[b] == cur[a]:
                 beta[a + 1] = start_beta[b + 1]
-    f, ok = _fit_set(Xt, y, w, off, fam, cur, k, beta, tol, max_iter, alias_tol, work, small, g,
-                     H, H_new, L)
+    f, ok = _fit_set(Xt, y, w, off, fam, shape, cur, k, beta, tol, max_iter, alias_tol, work, small,
+                     g, H, H_new, L)
     fits = 1
     bad = 0 if ok else 1
     _offer(k, f, cur, beta, slot_start, cap, filled, worst, best_score, best_members, best_coef)
@@ -292,7 +296,7 @@ def splice(Xt, y, w, off, fam, start, start_beta, max_swap, gain_tol, max_rounds
             inside[j] = False
         for a in range(k):
             inside[cur[a]] = True
-        _sacrifices(Xt, y, w, off, fam, cur, k, beta, inside, sacrifice, eta, v, r)
+        _sacrifices(Xt, y, w, off, fam, shape, cur, k, beta, inside, sacrifice, eta, v, r)
         # terms in, weakest first; terms out, strongest first (ties: the term listed first)
         for a in range(k):
             in_order[a] = cur[a]
@@ -341,7 +345,7 @@ def splice(Xt, y, w, off, fam, start, start_beta, max_swap, gain_tol, max_rounds
                 for b in range(k):
                     if cur[b] == trial_sorted[a]:
                         trial_beta[a + 1] = beta[b + 1]
-            ft, ok = _fit_set(Xt, y, w, off, fam, trial_sorted, k, trial_beta, tol, max_iter,
+            ft, ok = _fit_set(Xt, y, w, off, fam, shape, trial_sorted, k, trial_beta, tol, max_iter,
                               alias_tol, work, small, g, H, H_new, L)
             fits += 1
             if not ok:

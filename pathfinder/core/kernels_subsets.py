@@ -12,8 +12,9 @@ the work done for the parent is reused:
   complement by one division (``RSS(S) - c_jy^2 / c_jj``); a subset that has
   children needs one symmetric elimination step on the indices above j. The
   number of rows never enters the loop.
-* :func:`glm_search` (binomial, Poisson) refits each subset by Newton's
-  method, started from its parent's coefficients with the new one at zero.
+* :func:`glm_search` (binomial, Poisson, negative binomial with theta held
+  fixed) refits each subset by Newton's method, started from its parent's
+  coefficients with the new one at zero.
   At that start the linear predictor is the parent's, so the first Hessian
   only needs one new row, formed from the parent's working weights and
   residuals (kept per depth, or recomputed when memory is short); usually one
@@ -46,8 +47,8 @@ from numba import njit
 # that assumes finite values is set, so infinities still propagate.
 _FAST = {"nsz", "arcp", "contract", "reassoc"}
 
-GAUSSIAN, BINOMIAL, POISSON = 0, 1, 2
-_ETA_CAP = 500.0          # exp() of a Poisson linear predictor stays finite
+GAUSSIAN, BINOMIAL, POISSON, NEGATIVE_BINOMIAL = 0, 1, 2, 3
+_ETA_CAP = 500.0          # exp() of a Poisson (negative binomial) linear predictor stays finite
 _VAR_FLOOR = 1e-12        # smallest binomial variance mu (1 - mu) used in the Hessian
 _MAX_HALVINGS = 40
 
@@ -214,12 +215,23 @@ def _sum(a):
 
 
 @njit(cache=True)
-def _rows(Xt, y, w, off, fam, members, k, beta, eta, v, r):
-    """Linear predictor, working weights ``v = w V(mu)``, ``r = w (y - mu)`` and the objective.
+def _rows(Xt, y, w, off, fam, shape, members, k, beta, eta, v, r):
+    """Linear predictor, Newton weights ``v``, scores ``r`` and the objective.
 
     The objective is the log-likelihood without the terms free of the
     coefficients: binomial ``sum w (y eta - log(1 + e^eta))``, Poisson
-    ``sum w (y eta - e^eta)``, Gaussian ``-sum w (y - eta)^2 / 2``.
+    ``sum w (y eta - e^eta)``, Gaussian ``-sum w (y - eta)^2 / 2``, negative
+    binomial (NB2, theta = ``shape`` held fixed, log link)
+    ``sum w (y eta - (y + theta) log(1 + mu / theta))``; the family's
+    ``log_likelihood_constant`` adds the rest back (for the negative binomial
+    ``sum w [log Gamma(y + theta) - log Gamma(theta) - log y! - y log theta]``).
+    ``r`` is the derivative of each row's objective by its linear predictor
+    and ``v`` minus the second derivative: ``w V(mu)`` and ``w (y - mu)`` for
+    the canonical links; for the negative binomial (log link not canonical)
+    the observed information ``w theta mu (theta + y) / (theta + mu)^2``,
+    positive for every count, and ``w theta (y - mu) / (theta + mu)``, so the
+    fits take true Newton steps (as :class:`pathfinder.core.families.NegativeBinomial`
+    does). ``shape`` is ignored by the other families.
     """
     n = y.shape[0]
     b0 = beta[0]
@@ -253,6 +265,16 @@ def _rows(Xt, y, w, off, fam, members, k, beta, eta, v, r):
             f += w[i] * (y[i] * eta[i] - m)
             v[i] = w[i] * m
             r[i] = w[i] * (y[i] - m)
+    elif fam == NEGATIVE_BINOMIAL:
+        theta = shape
+        for i in range(n):
+            e = eta[i] if eta[i] < _ETA_CAP else _ETA_CAP
+            m = np.exp(e)
+            tm = theta + m
+            share = theta / tm               # 1 / (1 + mu / theta), kept in (0, 1]
+            f += w[i] * (y[i] * eta[i] - (y[i] + theta) * np.log1p(m / theta))
+            v[i] = w[i] * (m / tm) * share * (theta + y[i])
+            r[i] = w[i] * share * (y[i] - m)
     else:
         for i in range(n):
             res = y[i] - eta[i]
@@ -263,7 +285,7 @@ def _rows(Xt, y, w, off, fam, members, k, beta, eta, v, r):
 
 
 @njit(cache=True)
-def _pass(Xt, y, w, off, fam, members, k, beta, g, H, from_col, work):
+def _pass(Xt, y, w, off, fam, shape, members, k, beta, g, H, from_col, work):
     """Objective, gradient and Hessian at ``beta`` (intercept first, then ``members[:k]``).
 
     Only the gradient entries and Hessian rows of the columns at positions
@@ -271,7 +293,7 @@ def _pass(Xt, y, w, off, fam, members, k, beta, g, H, from_col, work):
     the rest must already hold the right values (a child keeps its parent's).
     """
     eta, v, r, vx = work[0], work[1], work[2], work[3]
-    f = _rows(Xt, y, w, off, fam, members, k, beta, eta, v, r)
+    f = _rows(Xt, y, w, off, fam, shape, members, k, beta, eta, v, r)
     if from_col == 0:
         g[0] = _sum(r)
         H[0, 0] = _sum(v)
@@ -354,7 +376,7 @@ _FRESH, _UNTOUCHED, _STALE = 1, 0, -1
 
 
 @njit(cache=True)
-def _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol, max_iter, alias_tol,
+def _newton(Xt, y, w, off, fam, shape, members, k, beta, g, H, f, tol, max_iter, alias_tol,
             work, small, H_new, L, min_steps):
     """Newton's method from ``beta`` where ``f, g, H`` are already known; updates them in place.
 
@@ -397,7 +419,7 @@ def _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol, max_iter, alias_
         for _ in range(_MAX_HALVINGS):
             for c in range(q):
                 trial[c] = beta[c] + t * step[c]
-            f_new = _pass(Xt, y, w, off, fam, members, k, trial, g_new, H_new, 0, work)
+            f_new = _pass(Xt, y, w, off, fam, shape, members, k, trial, g_new, H_new, 0, work)
             if f_new >= f - slack:
                 accepted = True
                 break
@@ -415,10 +437,11 @@ def _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol, max_iter, alias_
 
 
 @njit(cache=True)
-def fit_subset(Xt, y, w, off, fam, members, beta, tol, max_iter, alias_tol):
+def fit_subset(Xt, y, w, off, fam, shape, members, beta, tol, max_iter, alias_tol):
     """Maximum-likelihood fit on the columns ``members`` from the start ``beta`` (updated in place).
 
-    ``Xt`` is (p, n): one standardised predictor per row. Returns
+    ``Xt`` is (p, n): one standardised predictor per row; ``fam`` the family
+    code and ``shape`` its theta (negative binomial; 0 otherwise). Returns
     ``(objective, converged)``; see :func:`_rows` for the objective.
     """
     k = members.shape[0]
@@ -430,14 +453,14 @@ def fit_subset(Xt, y, w, off, fam, members, beta, tol, max_iter, alias_tol):
     H = np.empty((q, q))
     H_new = np.empty((q, q))
     L = np.zeros((q, q))
-    f = _pass(Xt, y, w, off, fam, members, k, beta, g, H, 0, work)
-    f, converged, _ = _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol, max_iter,
+    f = _pass(Xt, y, w, off, fam, shape, members, k, beta, g, H, 0, work)
+    f, converged, _ = _newton(Xt, y, w, off, fam, shape, members, k, beta, g, H, f, tol, max_iter,
                               alias_tol, work, small, H_new, L, 0)
     return f, converged
 
 
 @njit(cache=True)
-def _keep_vectors(Xt, y, w, off, fam, members, k, beta, work, buffers, from_pass, V, R, d):
+def _keep_vectors(Xt, y, w, off, fam, shape, members, k, beta, work, buffers, from_pass, V, R, d):
     """Store the working weights and residuals of the subset at depth k for its children."""
     if buffers == _FRESH or (buffers == _UNTOUCHED and from_pass):
         V[k, :] = work[1]
@@ -446,12 +469,12 @@ def _keep_vectors(Xt, y, w, off, fam, members, k, beta, work, buffers, from_pass
         V[k, :] = V[d]
         R[k, :] = R[d]
     else:
-        _rows(Xt, y, w, off, fam, members, k, beta, work[0], V[k], R[k])
+        _rows(Xt, y, w, off, fam, shape, members, k, beta, work[0], V[k], R[k])
 
 
 @njit(cache=True)
-def _fit_child(Xt, y, w, off, fam, members, d, betas, gs, Hs, fs, V, R, stored, tol, max_iter,
-               alias_tol, work, small, H_new, L):
+def _fit_child(Xt, y, w, off, fam, shape, members, d, betas, gs, Hs, fs, V, R, stored, tol,
+               max_iter, alias_tol, work, small, H_new, L):
     """Fit the subset ``members[:d + 1]`` from its parent (depth d) with the new coefficient at 0.
 
     At that start the linear predictor is the parent's, so only the new
@@ -484,18 +507,18 @@ def _fit_child(Xt, y, w, off, fam, members, d, betas, gs, Hs, fs, V, R, stored, 
             H[b + 1, k] = h
         f = fs[d]
     else:
-        f = _pass(Xt, y, w, off, fam, members, k, beta, g, H, k - 1, work)
-    f, converged, buffers = _newton(Xt, y, w, off, fam, members, k, beta, g, H, f, tol,
+        f = _pass(Xt, y, w, off, fam, shape, members, k, beta, g, H, k - 1, work)
+    f, converged, buffers = _newton(Xt, y, w, off, fam, shape, members, k, beta, g, H, f, tol,
                                     max_iter, alias_tol, work, small, H_new, L,
                                     1 if stored else 0)
     fs[k] = f
     if stored:
-        _keep_vectors(Xt, y, w, off, fam, members, k, beta, work, buffers, False, V, R, d)
+        _keep_vectors(Xt, y, w, off, fam, shape, members, k, beta, work, buffers, False, V, R, d)
     return converged
 
 
 @njit(cache=True)
-def glm_search(Xt, y, w, off, fam, intercept_start, start, count, max_size, tol, max_iter,
+def glm_search(Xt, y, w, off, fam, shape, intercept_start, start, count, max_size, tol, max_iter,
                alias_tol, stored, slot_start, cap, best_score, best_members, best_coef):
     """Visit ``count`` subsets from ``start``; keep the largest log-likelihood per size.
 
@@ -529,18 +552,19 @@ def glm_search(Xt, y, w, off, fam, intercept_start, start, count, max_size, tol,
 
     # The intercept-only model, then the parents of the first subset, as from the start.
     betas[0, 0] = intercept_start
-    f = _pass(Xt, y, w, off, fam, members, 0, betas[0], gs[0], Hs[0], 0, work)
-    fs[0], converged, buffers = _newton(Xt, y, w, off, fam, members, 0, betas[0], gs[0], Hs[0],
-                                        f, tol, max_iter, alias_tol, work, small, H_new, L, 0)
+    f = _pass(Xt, y, w, off, fam, shape, members, 0, betas[0], gs[0], Hs[0], 0, work)
+    fs[0], converged, buffers = _newton(Xt, y, w, off, fam, shape, members, 0, betas[0], gs[0],
+                                        Hs[0], f, tol, max_iter, alias_tol, work, small, H_new,
+                                        L, 0)
     if stored:
-        _keep_vectors(Xt, y, w, off, fam, members, 0, betas[0], work, buffers, True, V, R, 0)
+        _keep_vectors(Xt, y, w, off, fam, shape, members, 0, betas[0], work, buffers, True, V, R, 0)
     d = start.shape[0]
     if d == 0 and not converged:
         not_converged += 1
     for i in range(d):
         members[i] = start[i]
-        converged = _fit_child(Xt, y, w, off, fam, members, i, betas, gs, Hs, fs, V, R, stored,
-                               tol, max_iter, alias_tol, work, small, H_new, L)
+        converged = _fit_child(Xt, y, w, off, fam, shape, members, i, betas, gs, Hs, fs, V, R,
+                               stored, tol, max_iter, alias_tol, work, small, H_new, L)
         nxt[i] = start[i] + 1
         if i == d - 1 and not converged:
             not_converged += 1
@@ -556,7 +580,7 @@ def glm_search(Xt, y, w, off, fam, intercept_start, start, count, max_size, tol,
         j = nxt[d]
         nxt[d] = j + 1
         members[d] = j
-        if not _fit_child(Xt, y, w, off, fam, members, d, betas, gs, Hs, fs, V, R, stored,
+        if not _fit_child(Xt, y, w, off, fam, shape, members, d, betas, gs, Hs, fs, V, R, stored,
                           tol, max_iter, alias_tol, work, small, H_new, L):
             not_converged += 1
         d += 1
