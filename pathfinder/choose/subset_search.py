@@ -21,7 +21,7 @@ Gaussian responses (:func:`least_squares_sizes`)
     A budget of models (``max_fits``) stops the search; the sizes whose
     branches were not all settled are then searched by splicing instead.
 
-Binomial and Poisson responses (:func:`likelihood_sizes`)
+Binomial, Poisson and negative binomial responses (:func:`likelihood_sizes`)
     Every subset of the smallest sizes is fitted (the exhaustive kernel of
     :mod:`pathfinder.core.kernels_subsets`) while that stays affordable:
     fits times rows at most ``EXHAUSTIVE_ROW_FITS``, about a few seconds on
@@ -30,10 +30,12 @@ Binomial and Poisson responses (:func:`likelihood_sizes`)
     missing term and the best of the size above less its weakest term give
     others, and splicing (Zhu, Wen, Zhang, Wang & Wang 2020, PNAS
     117:33117-33123) improves each start while it gains. A searched size is
-    therefore never worse than forward stepwise at that size.
+    therefore never worse than forward stepwise at that size. The negative
+    binomial's theta is held at the family's value (``row_shape``) in every
+    fit.
 
 Sizes covered
-    Gaussian: every size up to p (and n - 2). Binomial and Poisson: from 0
+    Gaussian: every size up to p (and n - 2). The other families: from 0
     until AIC, AICc and BIC have all stayed above their lowest value for
     ``RISING_SIZES`` sizes running (a real effect rarely hides behind five
     sizes of worsening criteria, and each size further costs as much as the
@@ -66,7 +68,8 @@ FOUND_BY = ("exhaustive", "proved", "searched")
 ALIAS_TOL = 1e-10            # residual variance share below which a term is aliased
 NEWTON_TOL = 1e-8            # Newton decrement relative to |log-likelihood| + 1 (then one more step)
 NEWTON_MAX_ITER = 50
-SEARCHABLE = (kernels.GAUSSIAN, kernels.BINOMIAL, kernels.POISSON)   # family codes the kernels know
+SEARCHABLE = (kernels.GAUSSIAN, kernels.BINOMIAL, kernels.POISSON,
+              kernels.NEGATIVE_BINOMIAL)   # family codes the kernels know
 
 
 @dataclass(frozen=True, eq=False)
@@ -186,11 +189,22 @@ def _here(fn, tasks, shared):
 
 # ---- forward stepwise at every size ----------------------------------------------
 
+def extra_parameters(family, count_variance) -> float:
+    """Parameters every model of a search carries besides its terms and intercept.
+
+    The Gaussian error variance when ``count_variance`` (Hurvich & Tsai 1989),
+    and theta when the family holds one estimated from these data
+    (``theta_estimated``: a run estimates it once from the model of every term
+    and holds it for every subset, so each model's likelihood rests on one
+    more fitted parameter; a theta the user gave costs nothing).
+    """
+    extra = 1.0 if count_variance and family.has_scale else 0.0
+    return extra + (1.0 if getattr(family, "theta_estimated", False) else 0.0)
+
+
 def criterion_penalties(data, max_size, count_variance):
     """(3, max_size + 1): the charge of AIC, AICc and BIC for models of 0..max_size terms."""
-    k = np.arange(max_size + 1, dtype=float) + 1.0
-    if count_variance and data.family.has_scale:
-        k = k + 1.0
+    k = np.arange(max_size + 1, dtype=float) + 1.0 + extra_parameters(data.family, count_variance)
     room = data.n - k - 1.0
     with np.errstate(divide="ignore", invalid="ignore"):
         aicc = np.where(room > 0, 2.0 * k + 2.0 * k * (k + 1.0) / room, np.inf)
@@ -241,7 +255,7 @@ class ForwardSteps:
 def forward_steps(data, max_size, *, window=0, count_variance=False, constant=0.0,
                   tol=NEWTON_TOL, max_iter=NEWTON_MAX_ITER, alias_tol=ALIAS_TOL,
                   stored_limit=1 << 22):
-    """Forward stepwise to ``max_size`` terms (binomial, Poisson; Gaussian by Newton's method too).
+    """Forward stepwise to ``max_size`` terms (GLMs; Gaussian by Newton's method too).
 
     With ``window > 0`` the path stops once AIC, AICc and BIC have stayed
     above their lowest value for ``window`` sizes running.
@@ -251,9 +265,10 @@ def forward_steps(data, max_size, *, window=0, count_variance=False, constant=0.
     objective = np.zeros(max_size + 1)
     coef = np.zeros((max_size + 1, max_size + 1))
     reached, fits, bad = kernels_search.forward_path(
-        data.Xt, data.y, data.w, data.offset, data.family.code, data.intercept_start,
-        max_size, tol, max_iter, alias_tol, (max_size + 2) * data.y.shape[0] <= stored_limit,
-        constant, penalty, int(window), added, objective, coef)
+        data.Xt, data.y, data.w, data.offset, data.family.code, data.family.row_shape,
+        data.intercept_start, max_size, tol, max_iter, alias_tol,
+        (max_size + 2) * data.y.shape[0] <= stored_limit, constant, penalty, int(window), added,
+        objective, coef)
     return ForwardSteps(added[:reached].copy(), objective[:reached + 1].copy(),
                         coef[:reached + 1, :reached + 1].copy(), int(fits), int(bad))
 
@@ -300,7 +315,7 @@ def splice_sizes(data, sizes, starts, slots_, below=None, *, tol=NEWTON_TOL,
     per size as (members, beta, objective), fits, fits that did not
     converge, fits per size)``.
     """
-    fam = data.family.code
+    fam, shape = data.family.code, data.family.row_shape
     d = data
     best, per_size = {}, {}
     bad = 0
@@ -308,7 +323,7 @@ def splice_sizes(data, sizes, starts, slots_, below=None, *, tol=NEWTON_TOL,
     def one(s, members, beta):
         nonlocal bad
         m, b, f, nf, nb = kernels_search.splice(
-            d.Xt, d.y, d.w, d.offset, fam, np.asarray(members, dtype=np.int64),
+            d.Xt, d.y, d.w, d.offset, fam, shape, np.asarray(members, dtype=np.int64),
             np.asarray(beta, dtype=float), MAX_SWAP, SPLICE_GAIN, SPLICE_ROUNDS, tol, max_iter,
             alias_tol, slots_.start, slots_.cap, slots_.filled, slots_.worst, slots_.score,
             slots_.members, slots_.coef)
@@ -318,7 +333,7 @@ def splice_sizes(data, sizes, starts, slots_, below=None, *, tol=NEWTON_TOL,
             best[s] = (m.copy(), b.copy(), float(f))
 
     def grown(model, grow):
-        return kernels_search.neighbour_start(d.Xt, d.y, d.w, d.offset, fam,
+        return kernels_search.neighbour_start(d.Xt, d.y, d.w, d.offset, fam, shape,
                                               np.asarray(model[0], dtype=np.int64),
                                               np.asarray(model[1], dtype=float), grow)
 

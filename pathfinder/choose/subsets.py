@@ -28,6 +28,10 @@ Searches
     started from forward stepwise and the neighbouring sizes, never worse
     than forward stepwise at the same size, up to the size where AIC, AICc
     and BIC have all risen for several sizes running.
+  - Negative binomial: the same, with theta held fixed at the family's value
+    (a run estimates it once from the model of every term); every subset is
+    fitted by Newton's method on the observed information, and its
+    log-likelihood is the full negative-binomial one at that theta.
   - Long searches are cut into tasks run through ``run(fn, tasks, shared)``;
     the kept models are the same whichever way they are cut or run.
 
@@ -43,8 +47,10 @@ Conventions (those of :mod:`pathfinder.choose.criteria`)
 --------------------------------------------------------
 * ``k`` in the tables is the number of predictors in the model;
   ``n_parameters = k + 1`` (the intercept), plus 1 for a Gaussian response
-  when ``count_variance=True``. By default the Gaussian error variance is not
-  counted, as in statsmodels' GLM ``aic`` and ``bic_llf``.
+  when ``count_variance=True``, plus 1 for the negative binomial's theta when
+  it was estimated from these data (``family.theta_estimated``; a theta
+  given by the user is not counted). By default the Gaussian error variance
+  is not counted, as in statsmodels' GLM ``aic`` and ``bic_llf``.
 * ``AIC = -2 logL + 2 n_parameters``; ``AICc = AIC + 2 n_parameters
   (n_parameters + 1) / (n - n_parameters - 1)`` (Hurvich & Tsai 1989,
   Biometrika 76:297-307), infinite when the denominator is not positive;
@@ -154,6 +160,11 @@ def prepare(problem: Problem, rows=None) -> SearchData:
     if fam.code not in search.SEARCHABLE:
         raise InputError(f"the subset searches do not cover the {fam.name} family yet; use "
                          "the penalised paths and stability selection, or --no-subsets")
+    if fam.needs_theta:
+        raise InputError("the subset searches hold theta fixed, but the negative binomial "
+                         "family given has none: pass it with theta set "
+                         "(NegativeBinomial(theta), e.g. theta estimated once from the model "
+                         "of every term)")
     X_all = np.asarray(problem.X, dtype=float)
     if X_all.ndim != 2:
         raise InputError(f"the predictors must form a table (rows x columns), got shape {X_all.shape}")
@@ -202,9 +213,9 @@ def prepare(problem: Problem, rows=None) -> SearchData:
 # ---- criteria ------------------------------------------------------------------
 
 def _n_parameters(k_terms, family, count_variance):
-    """Parameters counted: the terms, the intercept, and the Gaussian variance when asked."""
-    extra = 1.0 if count_variance and family.has_scale else 0.0
-    return np.asarray(k_terms, dtype=float) + 1.0 + extra
+    """Parameters counted: the terms, the intercept, and those every model carries
+    (:func:`pathfinder.choose.subset_search.extra_parameters`)."""
+    return np.asarray(k_terms, dtype=float) + 1.0 + search.extra_parameters(family, count_variance)
 
 
 def criteria_columns(log_likelihood, n_parameters, n) -> dict:
@@ -298,10 +309,10 @@ def run_block(data: SearchData, task: SearchTask) -> BlockResult:
     else:
         coef = np.zeros((total, task.max_size + 1))
         visited, not_converged = kernels.glm_search(
-            data.Xt, data.y, data.w, data.offset, data.family.code, data.intercept_start,
-            start, task.count, task.max_size, NEWTON_TOL, NEWTON_MAX_ITER, ALIAS_TOL,
-            (task.max_size + 1) * data.y.shape[0] <= STORED_VECTORS, slot_start, cap, scores,
-            members, coef)
+            data.Xt, data.y, data.w, data.offset, data.family.code, data.family.row_shape,
+            data.intercept_start, start, task.count, task.max_size, NEWTON_TOL, NEWTON_MAX_ITER,
+            ALIAS_TOL, (task.max_size + 1) * data.y.shape[0] <= STORED_VECTORS, slot_start, cap,
+            scores, members, coef)
     sizes = np.repeat(np.arange(task.max_size + 1), cap)
     used = ~np.isnan(scores)
     return BlockResult(sizes[used], scores[used], members[used][:, :task.max_size], coef[used],
@@ -367,9 +378,10 @@ def _size_limit(data: SearchData) -> int:
 
 
 def _log_constant(data: SearchData) -> float:
-    """Log-likelihood less the kernels' objective (Poisson: -sum w log y!; binomial 0/1: 0)."""
+    """Log-likelihood less the kernels' objective (Poisson: -sum w log y!; binomial 0/1: 0;
+    negative binomial: ``sum w [log Gamma(y + theta) - log Gamma(theta) - log y! - y log theta]``),
+    as the family gives it (``log_likelihood_constant``)."""
     return data.family.log_likelihood_constant(data.y, data.w)
-    return 0.0
 
 
 def _exhaustive(data: SearchData, size, keep, run, progress):
@@ -405,7 +417,8 @@ def _affordable_size(data: SearchData, top, budget):
 
 
 def _likelihood_search(data: SearchData, requested, keep, budget, count_variance, run, progress):
-    """Binomial and Poisson: exhaustive small sizes, splicing beyond (see subset_search)."""
+    """Binomial, Poisson, negative binomial: exhaustive small sizes, splicing beyond
+    (see subset_search)."""
     limit = _size_limit(data)
     constant = _log_constant(data)
     penalty = search.criterion_penalties(data, limit, count_variance)
@@ -503,7 +516,9 @@ def best_subsets(problem: Problem, *, max_size=None, rows=None, keep_per_size=10
 
     Gaussian: leaps and bounds proves the best ``keep_per_size`` models of
     every size 0..p (see :mod:`pathfinder.choose.subset_search`).
-    Binomial and Poisson: every subset of the smallest sizes is fitted while
+    Binomial, Poisson and negative binomial (theta held fixed; a family
+    whose theta is still unknown is refused): every subset of the smallest
+    sizes is fitted while
     that is affordable, and larger sizes are searched by splicing from
     forward stepwise and the neighbouring sizes, from 0 until AIC, AICc and
     BIC have all risen for ``RISING_SIZES`` sizes running (or p).
@@ -513,7 +528,7 @@ def best_subsets(problem: Problem, *, max_size=None, rows=None, keep_per_size=10
     cross-validation fold. ``max_fits`` (``max_models`` is the same) caps
     the models fitted or evaluated by the exact part of the search: the
     branch and bound (Gaussian; default ``DEFAULT_GAUSSIAN_MODELS``) or the
-    exhaustive sizes (binomial and Poisson; by default those whose fits
+    exhaustive sizes (the other families; by default those whose fits
     times rows stay below ``EXHAUSTIVE_ROW_FITS``); sizes the budget leaves
     unproved are searched, and ``notes`` says so and how to lift it.
     ``run(fn, tasks, shared)`` carries out the tasks of a long search
@@ -652,7 +667,8 @@ def _full_log_likelihood(data: SearchData) -> float:
     beta = np.zeros(data.p + 1)
     beta[0] = data.intercept_start
     f, _ = kernels.fit_subset(data.Xt, data.y, data.w, data.offset, data.family.code,
-                              cols, beta, NEWTON_TOL, NEWTON_MAX_ITER, ALIAS_TOL)
+                              data.family.row_shape, cols, beta, NEWTON_TOL, NEWTON_MAX_ITER,
+                              ALIAS_TOL)
     return float(f) + _log_constant(data)
 
 
@@ -887,13 +903,13 @@ class _Fitter:
         self.data = data
         self.code = data.family.code
         self.count_variance = count_variance
-        self.constant = data.family.log_likelihood_constant(data.y, data.w)
+        self.constant = _log_constant(data)
 
     def fit(self, members, start):
         """(log-likelihood, standardised coefficients) of the subset ``members``."""
         d = self.data
         beta = np.array(start, dtype=float)
-        f, _ = kernels.fit_subset(d.Xt, d.y, d.w, d.offset, self.code,
+        f, _ = kernels.fit_subset(d.Xt, d.y, d.w, d.offset, self.code, d.family.row_shape,
                                   np.asarray(members, dtype=np.int64), beta, NEWTON_TOL,
                                   NEWTON_MAX_ITER, ALIAS_TOL)
         if d.family.least_squares:
