@@ -417,7 +417,7 @@ def cv_curve(cv: pd.DataFrame, picks: pd.DataFrame | None = None, metric: str | 
                  "folds. Where the two part, the model starts to fit noise."))
 
 
-def _relax_name(value) -> str:
+def _relaxation_name(value) -> str:
     value = float(value)
     if value == 1.0:
         return "1 (the lasso)"
@@ -443,13 +443,13 @@ def _cv_panel(label, rows, picks, metric, domain, max_steps):
         long = pd.DataFrame({"x": rows["penalty"], "n_terms": n_terms, "value": rows["cv_mean"],
                              "se": rows["cv_se"], "lo": rows["cv_mean"] - rows["cv_se"],
                              "hi": rows["cv_mean"] + rows["cv_se"],
-                             "series": [_relax_name(r) for r in relaxation]})
+                             "series": [_relaxation_name(r) for r in relaxation]})
         domain_s = list(dict.fromkeys(long["series"]))
         colour = alt.Color("series:N", title="relaxation",
                            scale=alt.Scale(domain=domain_s, range=theme.cycle(len(domain_s))),
                            legend=alt.Legend(orient="right"))
         # error bars only for the relaxation the picks use
-        bar_series = ([_relax_name(r) for r in picks["relaxation"].dropna()]
+        bar_series = ([_relaxation_name(r) for r in picks["relaxation"].dropna()]
                       if picks is not None and "relaxation" in picks.columns else [])
         bars_data = long[long["series"].isin(bar_series)] if bar_series else long.iloc[:0]
     else:

@@ -106,10 +106,10 @@ def run_once(rng, n, p, snr, medium):
     path = list(zip(lasso.intercept, lasso.coef))
     out["lasso"] = pick(path, Xv, yv)
     b0_refit, b_refit = relaxed.refit_path(problem, lasso, np.arange(n))
-    grid = getattr(relaxed, "RELAXATIONS", None) or getattr(relaxed, "RELAX_GRID")
+    grid = relaxed.RELAXATIONS
     blended = []
-    for relax in grid:
-        b0s, bs = relaxed.blend(lasso, b0_refit, b_refit, relax)
+    for relaxation in grid:
+        b0s, bs = relaxed.blend(lasso, b0_refit, b_refit, relaxation)
         blended += list(zip(b0s, bs))
     out["relaxed lasso"] = pick(blended, Xv, yv)
     signal = beta @ Sigma @ beta

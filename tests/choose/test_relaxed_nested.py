@@ -62,11 +62,11 @@ def test_relaxed_model_blends_lasso_and_refit():
     relaxed = relaxed_lasso(problem, cv.fits[1.0], splits)
     lasso = cv.fits[1.0]
     for _, pick in relaxed.picks.iterrows():
-        k, relax = int(pick.step), pick.relaxation
+        k, relaxation = int(pick.step), pick.relaxation
         b0_refit, b_refit = refit(problem, np.arange(problem.n), np.flatnonzero(lasso.coef[k]))
         b0, b = relaxed.models[pick.rule]
-        assert np.allclose(b, relax * lasso.coef[k] + (1 - relax) * b_refit)
-        assert b0 == pytest.approx(relax * lasso.intercept[k] + (1 - relax) * b0_refit)
+        assert np.allclose(b, relaxation * lasso.coef[k] + (1 - relaxation) * b_refit)
+        assert b0 == pytest.approx(relaxation * lasso.intercept[k] + (1 - relaxation) * b0_refit)
 
 
 def test_nested_error_is_honest_on_pure_noise():
