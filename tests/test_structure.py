@@ -155,8 +155,10 @@ def test_study_options_take_their_defaults_from_the_defaults_module():
 
 def test_the_compiled_kernels_know_the_families_by_the_same_codes():
     from pathfinder.core import kernels, kernels_subsets
-    from pathfinder.core.families import BINOMIAL, GAUSSIAN, POISSON
+    from pathfinder.core.families import BINOMIAL, GAUSSIAN, NEGATIVE_BINOMIAL, POISSON
 
     assert kernels.BINOMIAL_ROWS == BINOMIAL.code
-    assert (kernels_subsets.GAUSSIAN, kernels_subsets.BINOMIAL, kernels_subsets.POISSON) == (
-        GAUSSIAN.code, BINOMIAL.code, POISSON.code)
+    assert kernels.NEGATIVE_BINOMIAL_ROWS == NEGATIVE_BINOMIAL.code
+    assert (kernels_subsets.GAUSSIAN, kernels_subsets.BINOMIAL, kernels_subsets.POISSON,
+            kernels_subsets.NEGATIVE_BINOMIAL) == (
+        GAUSSIAN.code, BINOMIAL.code, POISSON.code, NEGATIVE_BINOMIAL.code)
