@@ -226,12 +226,13 @@ def _rows(Xt, y, w, off, fam, shape, members, k, beta, eta, v, r):
     ``log_likelihood_constant`` adds the rest back (for the negative binomial
     ``sum w [log Gamma(y + theta) - log Gamma(theta) - log y! - y log theta]``).
     ``r`` is the derivative of each row's objective by its linear predictor
-    and ``v`` minus the second derivative: ``w V(mu)`` and ``w (y - mu)`` for
-    the canonical links; for the negative binomial (log link not canonical)
-    the observed information ``w theta mu (theta + y) / (theta + mu)^2``,
-    positive for every count, and ``w theta (y - mu) / (theta + mu)``, so the
-    fits take true Newton steps (as :class:`pathfinder.core.families.NegativeBinomial`
-    does). ``shape`` is ignored by the other families.
+    and ``v`` minus its second derivative: ``r = w (y - mu)`` and ``v = w
+    V(mu)`` for the canonical links; for the negative binomial (log link not
+    canonical) ``r = w theta (y - mu) / (theta + mu)`` and the observed
+    information ``v = w theta mu (theta + y) / (theta + mu)^2``, positive for
+    every count, so the fits take true Newton steps (as
+    :class:`pathfinder.core.families.NegativeBinomial` does). ``shape`` is
+    ignored by the other families.
     """
     n = y.shape[0]
     b0 = beta[0]
