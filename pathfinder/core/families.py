@@ -435,6 +435,16 @@ class NegativeBinomial(CountFamily):
                 - theta * np.log1p(mu / theta) + xlogy(y, mu / (theta + mu)))
         return (wc * each).sum(axis=0)
 
+    def log_likelihood_constant(self, y, w) -> float:
+        """The part of the log-likelihood free of the coefficients (theta held):
+        ``sum w [log Gamma(y + theta) - log Gamma(theta) - log y! - y log theta]``;
+        the compiled subset fits leave it out (their objective is
+        ``sum w [y eta - (y + theta) log(1 + mu / theta)]``)."""
+        theta = self._theta()
+        y = np.asarray(y, dtype=float)
+        return float(np.dot(w, gammaln(y + theta) - gammaln(theta) - gammaln(y + 1.0)
+                            - y * np.log(theta)))
+
     def __repr__(self):
         return "NegativeBinomial()" if self.theta is None else f"NegativeBinomial(theta={self.theta!r})"
 
