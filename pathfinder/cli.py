@@ -291,8 +291,9 @@ def run_demo(args) -> int:
     others = tuple(c for f, c in examples.DEMO_RESPONSES.items() if f != family)
     effort = examples.EFFORT
     # Effort is an offset for the count; for the other responses it is not a predictor either.
+    # counts: let the dispersion checks choose between Poisson and the negative binomial
     options = StudyOptions(
-        response=response, family=family,
+        response=response, family="auto" if counts else family,
         exclude=others + tuple(examples.SITE_LABELS) + (examples.GROUPS,)
         + (() if counts else (effort,)),
         effort=effort if counts else None, coords=tuple(examples.COORDS),
