@@ -31,8 +31,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from .kernels_subsets import (_better, _find_worst, _fit_child, _keep_vectors, _newton, _pass,
-                              _rows)
+from .kernels_subsets import (_find_worst, _fit_child, _keep_vectors, _newton, _pass, _rows,
+                              take_slot)
 
 
 @njit(cache=True)
@@ -59,20 +59,8 @@ def _offer(size, score, members, beta, slot_start, cap, filled, worst, best_scor
                 if filled[size] == c:
                     worst[size] = _find_worst(size, base, c, best_score, best_members)
             return
-    if filled[size] < c:
-        slot = base + filled[size]
-        filled[size] += 1
-    else:
-        slot = worst[size]
-        if not _better(score, members, best_score[slot], best_members[slot], size):
-            return
-    best_score[slot] = score
-    for t in range(size):
-        best_members[slot, t] = members[t]
-    for t in range(min(best_coef.shape[1], size + 1)):
-        best_coef[slot, t] = beta[t]
-    if filled[size] == c:
-        worst[size] = _find_worst(size, base, c, best_score, best_members)
+    take_slot(size, score, members, beta, base, c, filled, worst, best_score, best_members,
+              best_coef)
 
 
 @njit(cache=True)

@@ -86,17 +86,25 @@ def _record(size, score, members, beta, slot_start, cap, filled, worst, floor,
     """
     if score != score:  # NaN never wins
         score = -np.inf
-    c = cap[size]
-    if c == 0:
+    if cap[size] == 0:
         return
-    base = slot_start[size]
+    if take_slot(size, score, members, beta, slot_start[size], cap[size], filled, worst,
+                 best_score, best_members, best_coef):
+        floor[size] = best_score[worst[size]]
+
+
+@njit(cache=True, inline="always")
+def take_slot(size, score, members, beta, base, c, filled, worst, best_score, best_members,
+              best_coef):
+    """Put a subset into a free slot of its size, or in place of the worst kept one if it
+    is better; returns True when the slots of that size are full afterwards."""
     if filled[size] < c:
         slot = base + filled[size]
         filled[size] += 1
     else:
         slot = worst[size]
         if not _better(score, members, best_score[slot], best_members[slot], size):
-            return
+            return False
     best_score[slot] = score
     for t in range(size):
         best_members[slot, t] = members[t]
@@ -104,7 +112,8 @@ def _record(size, score, members, beta, slot_start, cap, filled, worst, floor,
         best_coef[slot, t] = beta[t]
     if filled[size] == c:
         worst[size] = _find_worst(size, base, c, best_score, best_members)
-        floor[size] = best_score[worst[size]]
+        return True
+    return False
 
 
 # ---- least squares: elimination on the cross-product matrix --------------------
