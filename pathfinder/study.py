@@ -289,7 +289,8 @@ def explore(data, options: StudyOptions | None = None, *, backend: Backend | Non
                 pfer=options.pfer, mix=selector.mix, strata=selector.strata, units=selector.units,
                 term_groups=selector.term_groups))
         if subsets_run:
-            chooser = SubsetSelector(max_fits=options.subset_budget, max_size=options.subset_sizes)
+            chooser = SubsetSelector(max_fits=options.subset_budget, max_size=options.subset_sizes,
+                                     dispersion=dispersion)
             selectors.append(chooser)
         outer, outer_predictions = None, {}
         if options.nested:

@@ -21,6 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..defaults import STABILITY_PAIRS
+from .criteria import quasi_criteria
 from .problem import BEST_SUBSET, STABILITY, STEPWISE, Choice, Problem, refit, subproblem
 from .stability import stability_selection
 from .subsets import best_subsets, stepwise
@@ -71,6 +72,7 @@ class SubsetSelector:
 
     max_fits: int | None = None
     max_size: int | None = None
+    dispersion: float | None = None    # overdispersed counts kept Poisson: QAICc and QAIC
 
     def run(self, problem: Problem, rows, run=None):
         """(subset search, stepwise result, choices) on ``rows``."""
@@ -78,14 +80,28 @@ class SubsetSelector:
         search = best_subsets(problem, rows=base, max_fits=self.max_fits, max_size=self.max_size,
                               run=run, count_variance=True)
         out = []
-        for criterion in ("aicc", "bic"):
-            b0, b, _ = search.best(criterion)
+        small = "aicc" if self.dispersion is None else "qaicc"
+        for criterion in (small, "bic"):
+            b0, b = self._best(problem, search, criterion)
             out.append(Choice(BEST_SUBSET, criterion, float("nan"), float("nan"), b0, b,
                               float("nan"), problem.names))
-        steps = stepwise(problem, direction="both", criterion="aic", rows=base, count_variance=True)
-        out.append(Choice(STEPWISE, "aic", float("nan"), float("nan"), float(steps.intercept),
+        by = "aic" if self.dispersion is None else "qaic"
+        steps = stepwise(problem, direction="both", criterion=by, rows=base, count_variance=True,
+                         dispersion=self.dispersion)
+        out.append(Choice(STEPWISE, by, float("nan"), float("nan"), float(steps.intercept),
                           np.asarray(steps.coef, dtype=float), float("nan"), problem.names))
         return search, steps, out
+
+    def _best(self, problem, search, criterion):
+        if criterion != "qaicc":
+            return search.best(criterion)[:2]
+        table = search.table
+        values = quasi_criteria(table["log_likelihood"], table["n_parameters"], search.n,
+                                self.dispersion)["qaicc"]
+        values = np.where(np.isfinite(values), values, np.inf)
+        best = np.flatnonzero(values == values.min())
+        row = int(best[np.argmin(table["k"].to_numpy()[best])])
+        return refit(problem, search.rows, np.array(search.columns[row], dtype=np.int64), ridge=0.0)
 
     def choose(self, problem: Problem, rows, seed):
         return self.run(problem, rows)[2]

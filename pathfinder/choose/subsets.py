@@ -95,8 +95,10 @@ from ..core import kernels_subsets as kernels
 from ..core.families import Family, get_family, null_intercept
 from ..errors import InputError
 from . import subset_search as search
+from .criteria import quasi_criteria
 from .problem import Problem, refit
 
+QUASI = ("qaic", "qaicc")         # quasi-likelihood criteria of overdispersed counts
 CRITERIA = ("aic", "aicc", "bic")
 GAUSSIAN_CRITERIA = ("adjusted_r2", "cp")
 DIRECTIONS = ("forward", "backward", "both")
@@ -899,10 +901,11 @@ class StepwiseResult:
 class _Fitter:
     """Log-likelihood of any subset of the prepared rows, by warm-started Newton fits."""
 
-    def __init__(self, data: SearchData, count_variance: bool):
+    def __init__(self, data: SearchData, count_variance: bool, dispersion=None):
         self.data = data
         self.code = data.family.code
         self.count_variance = count_variance
+        self.dispersion = dispersion
         self.constant = _log_constant(data)
 
     def fit(self, members, start):
@@ -922,11 +925,13 @@ class _Fitter:
 
     def criterion(self, ll, k_terms, criterion):
         k = _n_parameters(k_terms, self.data.family, self.count_variance)
+        if criterion in QUASI:
+            return float(quasi_criteria(ll, k, self.data.n, self.dispersion)[criterion])
         return float(criteria_columns(ll, k, self.data.n)[criterion])
 
 
 def stepwise(problem: Problem, *, direction="forward", criterion="aic", rows=None, max_steps=None,
-             max_terms=None, count_variance=False) -> StepwiseResult:
+             max_terms=None, count_variance=False, dispersion=None) -> StepwiseResult:
     """Add or remove one term at a time while the criterion falls.
 
     ``direction``: ``forward`` starts from the intercept-only model and adds
@@ -936,18 +941,21 @@ def stepwise(problem: Problem, *, direction="forward", criterion="aic", rows=Non
     change that lowers ``criterion`` (aic, aicc or bic) the most; the search
     stops when no change lowers it, after ``max_steps`` steps, or when an
     addition would exceed ``max_terms`` terms. Ties go to removals, then to
-    the term listed first.
+    the term listed first. With ``dispersion`` (overdispersed counts kept
+    Poisson) ``criterion`` may be ``qaic`` or ``qaicc`` (Burnham & Anderson
+    2002, section 2.5; see :func:`pathfinder.choose.criteria.quasi_criteria`).
     """
     direction = str(direction).lower()
     if direction not in DIRECTIONS:
         raise InputError(f"unknown stepwise direction {direction!r}; use forward, backward or both")
     data = prepare(problem, rows)
-    criterion = _check_criterion(criterion, data.family, CRITERIA)
+    criterion = _check_criterion(criterion, data.family,
+                                 CRITERIA + (QUASI if dispersion is not None else ()))
     p = data.p
     max_steps = None if max_steps is None else _check_int(max_steps, "max_steps", 0)
     max_terms = _size_limit(data) if max_terms is None else min(_size_limit(data),
                                                                  _check_int(max_terms, "max_terms", 0))
-    fitter = _Fitter(data, count_variance)
+    fitter = _Fitter(data, count_variance, dispersion)
 
     members = list(range(p)) if direction == "backward" else []
     if direction == "backward" and data.n <= p + 1:

@@ -394,3 +394,17 @@ def test_bad_requests_are_refused():
     bad = Problem(problem.X, problem.y * 3, "binomial", problem.names)
     with pytest.raises(InputError, match="between 0 and 1"):
         best_subsets(bad)
+
+
+def test_stepwise_by_qaic_follows_the_quasi_likelihood():
+    """Burnham & Anderson (2002, section 2.5): with c = 1 QAIC is AIC plus 2 (c counted), so
+    it chooses as AIC does; a large c shrinks every log-likelihood gain, so fewer terms."""
+    problem = invented(5, "poisson", n=200, p=6)
+    by_aic = stepwise(problem, direction="both", criterion="aic")
+    same = stepwise(problem, direction="both", criterion="qaic", dispersion=1.0)
+    assert same.terms == by_aic.terms
+    assert same.value == pytest.approx(by_aic.value + 2.0)
+    wide = stepwise(problem, direction="both", criterion="qaic", dispersion=40.0)
+    assert len(wide.terms) < len(by_aic.terms)
+    with pytest.raises(InputError):
+        stepwise(problem, criterion="qaic")          # no dispersion given: refused

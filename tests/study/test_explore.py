@@ -190,7 +190,9 @@ def test_overdispersed_counts_are_found_and_said():
     auto = explore(table, StudyOptions(**quick, subsets=False))
     assert auto.family.name == NegativeBinomial.name and auto.family.theta > 0
     assert any("overdispersed" in n for n in auto.notes)
-    forced = explore(table, StudyOptions(**quick, family="poisson"))
+    forced = explore(table, StudyOptions(**{**quick, "nested": True}, family="poisson"))
     assert {"qaic", "qaicc"} <= set(forced.tables["criteria"].columns)
+    rules = set(zip(forced.tables["comparison"].method, forced.tables["comparison"].rule))
+    assert {("best subset", "qaicc"), ("stepwise", "qaic")} <= rules
     assert "qaicc" in forced.tables["subsets"].columns
     assert any("QAICc" in n for n in forced.notes)
