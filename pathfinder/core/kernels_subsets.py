@@ -145,6 +145,20 @@ def _eliminate(M, d, j, yv, aliased):
             M[d + 1, a, b] = M[d, a, b] - f * M[d, j, b]
 
 
+@njit(cache=True, inline="always")
+def _next_subset(d, nxt, members, max_size, p):
+    """The next subset in depth-first order: climb to the deepest depth that can still
+    grow, put its next member at ``members[d]``; ``(depth, member)``, depth -1 when done."""
+    while d >= 0 and not (d < max_size and nxt[d] < p):
+        d -= 1
+    if d < 0:
+        return d, -1
+    j = nxt[d]
+    nxt[d] = j + 1
+    members[d] = j
+    return d, j
+
+
 @njit(cache=True)
 def gaussian_search(A, start, count, max_size, alias_tol, slot_start, cap,
                     best_score, best_members):
@@ -186,13 +200,9 @@ def gaussian_search(A, start, count, max_size, alias_tol, slot_start, cap,
             best_score, best_members, no_coef)
     done = 1
     while done < count:
-        while d >= 0 and not (d < max_size and nxt[d] < p):
-            d -= 1
+        d, j = _next_subset(d, nxt, members, max_size, p)
         if d < 0:
             break
-        j = nxt[d]
-        nxt[d] = j + 1
-        members[d] = j
         rss, aliased = _pivot_rss(M, d, j, yv, diag0, alias_tol)
         if d + 1 < max_size and j + 1 < p:
             _eliminate(M, d, j, yv, aliased)
@@ -583,13 +593,9 @@ def glm_search(Xt, y, w, off, fam, shape, intercept_start, start, count, max_siz
             best_score, best_members, best_coef)
     done = 1
     while done < count:
-        while d >= 0 and not (d < max_size and nxt[d] < p):
-            d -= 1
+        d, j = _next_subset(d, nxt, members, max_size, p)
         if d < 0:
             break
-        j = nxt[d]
-        nxt[d] = j + 1
-        members[d] = j
         if not _fit_child(Xt, y, w, off, fam, shape, members, d, betas, gs, Hs, fs, V, R, stored,
                           tol, max_iter, alias_tol, work, small, H_new, L):
             not_converged += 1
