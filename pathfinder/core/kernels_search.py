@@ -32,7 +32,7 @@ import numpy as np
 from numba import njit
 
 from .kernels_subsets import (_find_worst, _fit_child, _keep_vectors, _newton, _pass, _rows,
-                              take_slot)
+                              take_slot, workspace)
 
 
 @njit(cache=True)
@@ -112,17 +112,7 @@ def forward_path(Xt, y, w, off, fam, shape, intercept_start, max_size, tol, max_
     p, n = Xt.shape
     depth_max = max_size + 2
     q = max_size + 2
-    betas = np.zeros((depth_max, q))
-    gs = np.zeros((depth_max, q))
-    Hs = np.zeros((depth_max, q, q))
-    fs = np.zeros(depth_max)
-    kept_n = n if stored else 0
-    V = np.empty((depth_max, kept_n))
-    R = np.empty((depth_max, kept_n))
-    work = np.empty((4, n))
-    small = np.empty((3, q))
-    H_new = np.empty((q, q))
-    L = np.zeros((q, q))
+    betas, gs, Hs, fs, V, R, work, small, H_new, L = workspace(depth_max, q, n, stored)
     members = np.zeros(q, dtype=np.int64)
     inside = np.zeros(p, dtype=np.bool_)
     fits = 1

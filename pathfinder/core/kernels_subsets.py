@@ -538,6 +538,17 @@ def _fit_child(Xt, y, w, off, fam, shape, members, d, betas, gs, Hs, fs, V, R, s
 
 
 @njit(cache=True)
+def workspace(depth_max, q, n, stored):
+    """Per-depth Newton state of a tree walk over subsets of up to ``q - 1`` terms:
+    (betas, gradients, Hessians, objectives, stored vectors V and R, row work arrays,
+    small work arrays, a spare Hessian, a Cholesky factor)."""
+    kept_n = n if stored else 0
+    return (np.zeros((depth_max, q)), np.zeros((depth_max, q)), np.zeros((depth_max, q, q)),
+            np.zeros(depth_max), np.empty((depth_max, kept_n)), np.empty((depth_max, kept_n)),
+            np.empty((4, n)), np.empty((3, q)), np.empty((q, q)), np.zeros((q, q)))
+
+
+@njit(cache=True)
 def glm_search(Xt, y, w, off, fam, shape, intercept_start, start, count, max_size, tol, max_iter,
                alias_tol, stored, slot_start, cap, best_score, best_members, best_coef):
     """Visit ``count`` subsets from ``start``; keep the largest log-likelihood per size.
@@ -552,17 +563,7 @@ def glm_search(Xt, y, w, off, fam, shape, intercept_start, start, count, max_siz
     p, n = Xt.shape
     depth_max = max_size + 1
     q = max_size + 1
-    betas = np.zeros((depth_max, q))
-    gs = np.zeros((depth_max, q))
-    Hs = np.zeros((depth_max, q, q))
-    fs = np.zeros(depth_max)
-    kept_n = n if stored else 0
-    V = np.empty((depth_max, kept_n))
-    R = np.empty((depth_max, kept_n))
-    work = np.empty((4, n))
-    small = np.empty((3, q))
-    H_new = np.empty((q, q))
-    L = np.zeros((q, q))
+    betas, gs, Hs, fs, V, R, work, small, H_new, L = workspace(depth_max, q, n, stored)
     members = np.zeros(max(max_size, 1), dtype=np.int64)
     nxt = np.zeros(depth_max + 1, dtype=np.int64)
     filled = np.zeros(max_size + 1, dtype=np.int64)
