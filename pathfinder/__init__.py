@@ -39,10 +39,12 @@ _compile_cache_or_none()
 
 from .core import PathResult, fit_path
 from .errors import FitWarning, InputError, PathfinderError
+from .estimators import PenalisedPathClassifier, PenalisedPathRegressor
 from .predict import load_model, predict_table
 from .study import StudyOptions, explore
 
 __version__ = "0.1.0"
 
-__all__ = ["FitWarning", "InputError", "PathResult", "PathfinderError", "StudyOptions", "__version__",
-           "explore", "fit_path", "load_model", "predict_table"]
+__all__ = ["FitWarning", "InputError", "PathResult", "PathfinderError", "PenalisedPathClassifier",
+           "PenalisedPathRegressor", "StudyOptions", "__version__", "explore", "fit_path", "load_model",
+           "predict_table"]
