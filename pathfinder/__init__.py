@@ -43,6 +43,13 @@ from .estimators import PenalisedPathClassifier, PenalisedPathRegressor
 from .predict import load_model, predict_table
 from .study import StudyOptions, explore
 
+from .report.notebook import path_html as _path_html
+
+# Notebooks show a path through _repr_html_. The HTML is built in report/, and
+# core imports nothing from report (imports only go down), so the method is
+# attached here, at the top of the package, which sits above every room.
+PathResult._repr_html_ = _path_html  # type: ignore[attr-defined]
+
 __version__ = "0.1.0"
 
 __all__ = ["FitWarning", "InputError", "PathResult", "PathfinderError", "PenalisedPathClassifier",

@@ -101,6 +101,11 @@ class Model:
             needed.append(self.offset_rule["column"])
         return needed
 
+    def _repr_html_(self) -> str:
+        """A compact summary in notebooks: family, response, terms, offset, source."""
+        from .report.notebook import model_html
+        return model_html(self)
+
     def predict(self, frame: pd.DataFrame, *, kind: str = "response") -> pd.DataFrame:
         """Predictions and extrapolation flags for every row of ``frame`` (see module notes)."""
         if kind not in KINDS:

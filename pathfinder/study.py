@@ -151,6 +151,11 @@ class Study:
         """(method, mix) -> full-data path."""
         return {(method_name(mix), mix): fit for mix, fit in self.cv.fits.items()}
 
+    def _repr_html_(self) -> str:
+        """A compact summary in notebooks (charts: ``pathfinder.report.notebook.show``)."""
+        from .report.notebook import study_html
+        return study_html(self)
+
 
 def load_table(data, options: StudyOptions):
     """A path is read with intake's checks; a DataFrame is used as given.
