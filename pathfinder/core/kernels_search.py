@@ -32,7 +32,7 @@ import numpy as np
 from numba import njit
 
 from .kernels_subsets import (_find_worst, _fit_child, _keep_vectors, _newton, _pass, _rows,
-                              take_slot, workspace)
+                              take_slot, fit_workspace, workspace)
 
 
 @njit(cache=True)
@@ -238,12 +238,7 @@ def splice(Xt, y, w, off, fam, shape, start, start_beta, max_swap, gain_tol, max
     p, n = Xt.shape
     k = start.shape[0]
     q = k + 1
-    work = np.empty((4, n))
-    small = np.empty((3, q))
-    g = np.empty(q)
-    H = np.empty((q, q))
-    H_new = np.empty((q, q))
-    L = np.zeros((q, q))
+    work, small, g, H, H_new, L = fit_workspace(q, n)
     cur = np.empty(k, dtype=np.int64)
     _sorted_copy(start, k, cur)
     beta = np.zeros(q)

@@ -467,12 +467,7 @@ def fit_subset(Xt, y, w, off, fam, shape, members, beta, tol, max_iter, alias_to
     k = members.shape[0]
     q = k + 1
     n = y.shape[0]
-    work = np.empty((4, n))
-    small = np.empty((3, q))
-    g = np.empty(q)
-    H = np.empty((q, q))
-    H_new = np.empty((q, q))
-    L = np.zeros((q, q))
+    work, small, g, H, H_new, L = fit_workspace(q, n)
     f = _pass(Xt, y, w, off, fam, shape, members, k, beta, g, H, 0, work)
     f, converged, _ = _newton(Xt, y, w, off, fam, shape, members, k, beta, g, H, f, tol, max_iter,
                               alias_tol, work, small, H_new, L, 0)
@@ -535,6 +530,14 @@ def _fit_child(Xt, y, w, off, fam, shape, members, d, betas, gs, Hs, fs, V, R, s
     if stored:
         _keep_vectors(Xt, y, w, off, fam, shape, members, k, beta, work, buffers, False, V, R, d)
     return converged
+
+
+@njit(cache=True)
+def fit_workspace(q, n):
+    """Work arrays of one Newton fit of ``q - 1`` terms on ``n`` rows:
+    (row work, small work, gradient, Hessian, spare Hessian, Cholesky factor)."""
+    return (np.empty((4, n)), np.empty((3, q)), np.empty(q), np.empty((q, q)),
+            np.empty((q, q)), np.zeros((q, q)))
 
 
 @njit(cache=True)
