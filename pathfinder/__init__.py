@@ -29,10 +29,10 @@ def _compile_cache_or_none() -> None:
     try:
         folder = tempfile.mkdtemp(prefix="pathfinder-compiled-")
     except OSError:
-        dispatcher.Dispatcher.enable_caching = lambda self: None
+        dispatcher.Dispatcher.enable_caching = lambda self: None  # type: ignore[method-assign]
         return
     atexit.register(shutil.rmtree, folder, ignore_errors=True)
-    config.CACHE_DIR = folder
+    config.CACHE_DIR = folder  # type: ignore[attr-defined]
 
 
 _compile_cache_or_none()
@@ -41,7 +41,7 @@ from .core import PathResult, fit_path
 from .errors import FitWarning, InputError, PathfinderError
 from .estimators import PenalisedPathClassifier, PenalisedPathRegressor
 from .predict import load_model, predict_table
-from .study import StudyOptions, explore
+from .study import Study, StudyOptions, explore
 
 from .report.notebook import path_html as _path_html
 
@@ -53,5 +53,5 @@ PathResult._repr_html_ = _path_html  # type: ignore[attr-defined]
 __version__ = "0.1.0"
 
 __all__ = ["FitWarning", "InputError", "PathResult", "PathfinderError", "PenalisedPathClassifier",
-           "PenalisedPathRegressor", "StudyOptions", "__version__", "explore", "fit_path", "load_model",
+           "PenalisedPathRegressor", "Study", "StudyOptions", "__version__", "explore", "fit_path", "load_model",
            "predict_table"]

@@ -35,6 +35,8 @@ plain offset column is required and added as it is.
 
 from __future__ import annotations
 
+import os
+from collections.abc import Sequence
 from pathlib import Path
 
 import numpy as np
@@ -259,7 +261,7 @@ def _read_factor(series: pd.Series, name: str, known: set, reasons: list) -> np.
     return labels
 
 
-def load_model(path) -> Model:
+def load_model(path: str | os.PathLike[str]) -> Model:
     """Read and check a model file."""
     return Model(load_model_document(path), source=f"model file {Path(path).expanduser()}")
 
@@ -285,8 +287,10 @@ def _check_out_path(out_path, data_path, model_path, overwrite=False) -> Path:
     return out
 
 
-def predict_table(model_path, data_path, out_path=None, *, decimal=None, na_values=None,
-                  kind="response", overwrite=False) -> pd.DataFrame:
+def predict_table(model_path: str | os.PathLike[str], data_path: str | os.PathLike[str],
+                  out_path: str | os.PathLike[str] | None = None, *, decimal: str | None = None,
+                  na_values: Sequence[str | float] | None = None, kind: str = "response",
+                  overwrite: bool = False) -> pd.DataFrame:
     """Predict at the sites of a table file; optionally write them as CSV.
 
     The model file is read and checked first, then the table (CSV or Parquet,

@@ -12,8 +12,11 @@ returned :class:`Study`.
 
 from __future__ import annotations
 
+import os
 import time
 import warnings
+from collections.abc import Callable
+from typing import Any
 from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 
@@ -202,8 +205,10 @@ def metrics_for(family, primary: str) -> tuple:
     return (primary,) + tuple(k for k in suits if k != primary)
 
 
-def explore(data, options: StudyOptions | None = None, *, backend: Backend | None = None,
-            progress=None, jobs: int | None = None, **settings) -> Study:
+def explore(data: str | os.PathLike[str] | pd.DataFrame, options: StudyOptions | None = None, *,
+            backend: Backend | None = None,
+            progress: Callable[[str, int | None], Callable[..., Any] | None] | None = None,
+            jobs: int | None = None, **settings: Any) -> Study:
     """Run the analysis on a table (a file path or a DataFrame).
 
     Give the settings either as a :class:`StudyOptions` or as keywords of its

@@ -52,14 +52,16 @@ The path
 from __future__ import annotations
 
 import warnings
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
+from numpy.typing import ArrayLike
 
 from ..defaults import GRID_DECADES, GRID_DECADES_WIDE, GRID_PER_DECADE, MAX_SWEEPS, TOL
 from ..errors import FitWarning, InputError
-from .families import get_family
+from .families import Family, get_family
 from .glm import estimate_theta
 from .solvers import (GramSolver, NaiveSolver, NewtonGramSolver, blas_threads, column_scales,
                       standardised_copy, weighted_mean)
@@ -127,7 +129,7 @@ class PathResult:
             "intercept": self.intercept,
         })
 
-    def coefficients_at(self, penalty):
+    def coefficients_at(self, penalty: float) -> tuple[float, np.ndarray]:
         """(intercept, coef) at any penalty inside the grid.
 
         Between two grid points the coefficients are interpolated linearly in
@@ -145,7 +147,8 @@ class PathResult:
         b0 = (1 - t) * self.intercept[k - 1] + t * self.intercept[k]
         return float(b0), (1 - t) * self.coef[k - 1] + t * self.coef[k]
 
-    def predict(self, X, penalty=None, *, kind="response", offset=None):
+    def predict(self, X: ArrayLike | pd.DataFrame, penalty: float | None = None, *,
+                kind: str = "response", offset: ArrayLike | None = None) -> np.ndarray:
         """Predictions for rows of X: (n, K) for the whole path, (n,) at one penalty.
 
         ``kind="link"`` gives the linear predictor, ``"response"`` the mean
@@ -382,10 +385,14 @@ def stop_here(family, dev_explained, k, automatic, lam, last_index):
     return None, None
 
 
-def fit_path(X, y, *, family="gaussian", mix=1.0, penalties=None, decades=None, per_decade=None,
-             n_penalties=None, term_weights=None, offset=None, weights=None,
-             standardize=True, tol=TOL, max_sweeps=MAX_SWEEPS, rows=None,
-             names=None, cross_products=None, theta=None) -> PathResult:
+def fit_path(X: ArrayLike | pd.DataFrame, y: ArrayLike, *, family: str | Family = "gaussian",
+             mix: float = 1.0, penalties: ArrayLike | None = None, decades: float | None = None,
+             per_decade: int | None = None, n_penalties: int | None = None,
+             term_weights: ArrayLike | None = None, offset: ArrayLike | None = None,
+             weights: ArrayLike | None = None, standardize: bool = True, tol: float = TOL,
+             max_sweeps: int = MAX_SWEEPS, rows: ArrayLike | None = None,
+             names: Sequence[str] | None = None, cross_products: np.ndarray | None = None,
+             theta: float | None = None) -> PathResult:
     """Fit a lasso / elastic-net / ridge path of a Gaussian, binomial or Poisson GLM.
 
     Parameters
