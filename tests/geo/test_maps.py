@@ -70,7 +70,7 @@ def test_maps_keep_the_grid_crs_and_nodata_of_the_layers(mapped):
         with rasterio.open(path) as ds:
             assert (ds.crs, ds.transform, ds.width, ds.height) == grid[:4], name
             assert ds.nodata == (0 if name == "most_dissimilar" else grid[4])
-            assert ds.profile["tiled"] and ds.profile["compress"] == "deflate"
+            assert ds.profile["tiled"] and ds.profile["compress"] == "zstd"
     assert set(mapped["whole"].paths) == {"prediction", "mess", "most_dissimilar",
                                           "novel_combinations"}
 
