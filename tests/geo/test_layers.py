@@ -11,7 +11,7 @@ from pathfinder.geo.layers import open_layers, read_all, values_at_points
 from pathfinder.geo.points import read_points
 from pathfinder.mapping import layer_values
 
-from .helpers import smooth, write_layer, write_layers
+from .invented_layers import smooth, write_layer, write_layers
 
 
 @pytest.fixture

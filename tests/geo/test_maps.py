@@ -12,7 +12,7 @@ from pathfinder.mapping import model_extras, write_maps
 from pathfinder.outputs.model_file import model_document, save_model
 from pathfinder.predict import Model, load_model
 
-from .helpers import smooth, write_layers
+from .invented_layers import smooth, write_layers
 
 SHAPE = (45, 70)
 TEMP_C, RAIN_C = 12.0, 900.0

@@ -11,7 +11,7 @@ from pathfinder.geo.layers import open_layers, read_all, values_at_points
 from pathfinder.geo.quadrature import (AREA, DENSITY, RECORD, berman_turner_weights, cell_areas,
                                        lay_tiles, presence_only_table, valid_cells)
 
-from .helpers import smooth, write_layers
+from .invented_layers import smooth, write_layers
 
 TRUE = np.array([0.8, -0.6])      # invented log-intensity slopes on the two layers
 
