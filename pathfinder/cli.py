@@ -226,6 +226,22 @@ def build_parser() -> argparse.ArgumentParser:
                          help="no-data codes to read as missing, such as -9999")
     predict.add_argument("--overwrite", action="store_true", help="replace an existing --out file")
     _add_terminal_options(predict, json_help=None)
+
+    mapping = _command(
+        commands, "map", run_map, summary="map a model over raster layers",
+        description="Map the model of a model.json over a folder of GeoTIFF layers (one per "
+                    "covariate, named by its file): the prediction, MESS, the most dissimilar "
+                    "covariate and novel combinations, on the layers' grid.",
+        examples=["results/model.json layers/ --out maps"])
+    mapping.add_argument("model", metavar="MODEL.json", help="the model file written by pathfinder explore")
+    mapping.add_argument("layers", metavar="LAYERS", help="a folder of GeoTIFFs, one per covariate")
+    mapping.add_argument("--out", required=True, metavar="DIR", help="folder for the map GeoTIFFs")
+    mapping.add_argument("--bias-layers", type=_names, metavar="A,B,..",
+                         help="observer-bias covariates held at one value on every cell "
+                              "(default: as the model file says)")
+    mapping.add_argument("--jobs", type=int, default=1, metavar="N", help="windows computed at once")
+    mapping.add_argument("--overwrite", action="store_true", help="replace maps already in DIR")
+    _add_terminal_options(mapping, json_help=None)
     return parser
 
 
@@ -365,6 +381,21 @@ def run_predict(args) -> int:
         for note in result.attrs.get("notes", ()):
             print(f"note: {note}", file=sys.stderr)
         print(prediction_summary(result), file=sys.stderr)
+    return 0
+
+
+def run_map(args) -> int:
+    from .mapping import write_maps
+    if args.jobs < 1:
+        raise InputError("--jobs must be 1 or more")
+    result = write_maps(args.model, args.layers, args.out, jobs=args.jobs,
+                        bias_values=list(args.bias_layers) if args.bias_layers else None,
+                        overwrite=args.overwrite)
+    if not args.quiet:
+        for note in result.notes:
+            print(f"note: {note}", file=sys.stderr)
+        print(f"maps written to {args.out}: " + ", ".join(Path(p).name for p in result.paths.values()),
+              file=sys.stderr)
     return 0
 
 

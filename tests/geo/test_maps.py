@@ -178,3 +178,20 @@ def test_existing_maps_are_kept_unless_overwrite(mapped):
     assert again.counts == mapped["whole"].counts
     assert sorted(p.name for p in (mapped["root"] / "whole").iterdir()) == sorted(
         p.name for p in again.paths.values())
+
+
+def test_the_map_command_writes_the_three_maps_the_contract_names(mapped, tmp_path):
+    """DESIGN.md's command-line contract: `pathfinder map MODEL.json LAYERS --out MAPDIR` writes
+    prediction.tif, mess.tif and most_dissimilar.tif on the layers' grid; the values are those
+    write_maps gives (checked above against the model file and Elith et al. 2010)."""
+    from pathfinder.cli import main
+
+    out = tmp_path / "maps"
+    assert main(["map", str(mapped["model"]), str(mapped["folder"]), "--out", str(out),
+                 "--quiet"]) == 0
+    for name in ("prediction.tif", "mess.tif", "most_dissimilar.tif"):
+        with rasterio.open(out / name) as made, rasterio.open(mapped["whole"].paths[name.split(".")[0]]) as whole:
+            assert made.shape == SHAPE and made.crs == whole.crs
+            assert np.array_equal(made.read(1), whole.read(1), equal_nan=True)
+    assert main(["map", str(mapped["model"]), str(tmp_path / "nowhere"), "--out",
+                 str(tmp_path / "m2"), "--quiet"]) == 2
